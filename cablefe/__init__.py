@@ -1,0 +1,55 @@
+"""cablefe: nonlinear analysis and form-finding of cable-supported structures.
+
+Results are an aid to design and must be checked independently, against the
+governing local codes, by a licensed engineer.
+
+Typical use from Python::
+
+    import cablefe
+    case = cablefe.read_case("cases/heavy_cable.toml")
+    model = cablefe.build_model(case)
+    results = cablefe.solve(model)
+    results.tension("self-weight", "C1")        # N at both ends
+    cablefe.write_results(results, "out")
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+from .analysis import solve
+from .errors import CaseError, MechanismError
+from .model import Model, build_model
+from .results import Results
+
+__version__ = "0.1.0"
+
+CAUTION = ("Results must be checked independently and against the governing local codes by a "
+           "licensed engineer; default safety factors are placeholders for the engineer to set.")
+
+
+def read_case(path):
+    """Read and validate a TOML case file; returns a :class:`cablefe.spec.CaseSpec`."""
+    from .io.case import read_case as _read
+    return _read(path)
+
+
+def load_model(path) -> Model:
+    """Read a case file and build its model; CaseError names file and key."""
+    case = read_case(path)
+    try:
+        return build_model(case)
+    except CaseError as exc:
+        raise exc.with_file(str(path)) from None
+
+
+def write_results(results: Results, folder, utilization=None) -> list[Path]:
+    """Write ``results.json``, one ``.vtu`` per result and ``results.pvd``."""
+    from .io.results_io import write_json, write_meshes
+    folder = Path(folder)
+    written = [write_json(results, folder / "results.json")]
+    written += write_meshes(results, folder, utilization)
+    return written
+
+
+__all__ = ["CAUTION", "CaseError", "MechanismError", "Model", "Results", "build_model",
+           "load_model", "read_case", "solve", "write_results"]

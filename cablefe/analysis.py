@@ -1,0 +1,42 @@
+"""The analysis steps as library calls: solve every result of a model."""
+from __future__ import annotations
+
+import logging
+
+from .model import Model
+from .results import Results
+from .solve.static import solve_combination
+
+log = logging.getLogger(__name__)
+
+
+def solve(model: Model, names=None, progress=None, linear_solver: str | None = None) -> Results:
+    """Solve every combination (or every load case when there are none).
+
+    Parameters
+    ----------
+    model : Model
+    names : iterable of str, optional
+        Solve only these results.
+    progress : callable(name, load_factor, iterations), optional
+    linear_solver : str, optional
+        Backend name overriding ``[analysis] solver``.
+
+    Returns
+    -------
+    Results
+        Non-converged results are included, marked ``converged = False``
+        with their last converged state.
+    """
+    todo = model.results_to_run()
+    if names is not None:
+        wanted = set(names)
+        unknown = wanted - {n for n, _ in todo}
+        if unknown:
+            raise ValueError(f"no result named {sorted(unknown)} (known: {', '.join(n for n, _ in todo)})")
+        todo = tuple(t for t in todo if t[0] in wanted)
+    items = []
+    for name, factors in todo:
+        cb = None if progress is None else (lambda lam, it, _n=name: progress(_n, lam, it))
+        items.append(solve_combination(model, name, factors, linear_solver=linear_solver, progress=cb))
+    return Results(model, tuple(items))

@@ -1,0 +1,164 @@
+"""Command line: parse arguments, call the library, print, set the exit code.
+
+Exit status: 0 success; 1 a result did not converge (what converged is
+written); 2 bad input or usage, with one line on stderr naming file and key.
+"""
+from __future__ import annotations
+
+import argparse
+import logging
+import sys
+import time
+from pathlib import Path
+
+from . import CAUTION, __version__
+
+log = logging.getLogger("cablefe")
+
+EXAMPLES = {
+    "check": "examples:\n  cablefe check cases/heavy_cable.toml",
+    "solve": "examples:\n  cablefe solve cases/heavy_cable.toml -o out/heavy\n"
+             "  cablefe solve cases/hanger_deck.toml -o out/deck --only crowd-left",
+    "run": "examples:\n  cablefe run cases/hanger_deck.toml -o out/deck",
+}
+
+
+class UsageError(Exception):
+    pass
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # exit 2 with one line, as for bad input
+        raise UsageError(f"{self.prog}: {message}")
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="cablefe", description="Nonlinear analysis and form-finding of cable structures. "
+                + CAUTION)
+    p.add_argument("--version", action="version", version=f"cablefe {__version__}")
+    p.add_argument("-v", "--verbose", action="store_true", help="log every load increment")
+    sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
+
+    c = sub.add_parser("check", help="validate a case and print a model summary",
+                       epilog=EXAMPLES["check"], formatter_class=argparse.RawDescriptionHelpFormatter)
+    c.add_argument("case", help="case file (TOML)")
+
+    for name, text in (("solve", "nonlinear static analysis of every combination"),
+                       ("run", "everything the case asks for: shape (if [shape]), solve, further studies")):
+        s = sub.add_parser(name, help=text, description=text, epilog=EXAMPLES[name],
+                           formatter_class=argparse.RawDescriptionHelpFormatter)
+        s.add_argument("case", help="case file (TOML)")
+        s.add_argument("-o", "--output", required=True, help="output folder")
+        s.add_argument("--only", action="append", metavar="NAME",
+                       help="solve only this combination (repeatable)")
+        s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
+                       help="sparse linear solver backend (default: [analysis] solver or auto)")
+    return p
+
+
+def _fmt(x, unit, digits=4):
+    return f"{x:.{digits}g} {unit}"
+
+
+def cmd_check(args) -> int:
+    import numpy as np
+    from . import load_model
+    model = load_model(args.case)
+    spec = model.spec
+    u = spec.units
+    counts = {}
+    for m in model.members:
+        counts[m.type] = counts.get(m.type, 0) + 1
+    weight = 0.0
+    for f, t in model.families.items():
+        if len(t):
+            weight += float(np.sum(t.props["weight"] * t.props["unstressed_length"]))
+    print(f"case: {args.case}" + (f"  ({spec.title})" if spec.title else ""))
+    print(f"units: length {u.length}, force {u.force}")
+    print(f"nodes: {len(model.node_ids)} ({len(spec.nodes)} declared, "
+          f"{len(model.node_ids) - len(spec.nodes)} inside divided members)")
+    print("members: " + ", ".join(f"{n} {t}" for t, n in counts.items()) +
+          f"; elements: {sum(len(t) for t in model.families.values())}")
+    print(f"degrees of freedom: {model.ndof} ({int((~model.restrained).sum())} free)")
+    print(f"total self-weight: {_fmt(weight / u.force_scale, u.force)}")
+    print(f"supports: {len(spec.supports)} (" + ", ".join(
+        f"{k}: {' '.join(d for d, on in zip(('x','y','z','rx','ry','rz'), v) if on)}"
+        for k, v in list(spec.supports.items())[:8]) + (" …" if len(spec.supports) > 8 else "") + ")")
+    print(f"load cases: {', '.join(model.load_cases) or 'none'}")
+    runs = model.results_to_run()
+    print(f"results to solve: {', '.join(n for n, _ in runs) or 'none'}")
+    print(f"form-finding: {spec.shape.method if spec.shape else 'none'}")
+    return 0
+
+
+def _summary(results) -> None:
+    import numpy as np
+    m = results.model
+    u = m.spec.units
+    for res in results.items:
+        o = res.outcome
+        disp = np.linalg.norm(res.state.positions - m.coordinates, axis=1)
+        k = int(np.argmax(disp)) if len(disp) else 0
+        mf = results.member_forces(res.name)
+        j = int(np.argmax(mf.max_tension)) if len(mf.max_tension) else 0
+        flag = "converged" if o.converged else f"NOT CONVERGED ({o.message})"
+        print(f"  {res.name}: {flag}; load factor {o.load_factor:.3f}, {o.iterations} iterations")
+        if len(disp):
+            print(f"    largest displacement {_fmt(disp[k] / u.length_scale, u.length)} at node {m.node_ids[k]}")
+        if len(mf.max_tension):
+            print(f"    largest tension {_fmt(mf.max_tension[j] / u.force_scale, u.force)} in member "
+                  f"{m.members[j].id}; slack members: {int(mf.slack.sum())}")
+
+
+def cmd_solve(args, shape_first=False) -> int:
+    from . import load_model, solve, write_results
+    model = load_model(args.case)
+    out = Path(args.output)
+    t0 = time.perf_counter()
+
+    def progress(name, lam, it):
+        log.info("%s: load factor %.3f (%d iterations)", name, lam, it)
+
+    results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
+    written = write_results(results, out)
+    print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
+    _summary(results)
+    print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
+    print("caution: " + CAUTION)
+    if not results.all_converged:
+        bad = [r.name for r in results.items if not r.converged]
+        print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json)", file=sys.stderr)
+        return 1
+    return 0
+
+
+def main(argv=None) -> int:
+    from .errors import CaseError
+    try:
+        args = _parser().parse_args(argv)
+    except UsageError as exc:
+        print(str(exc), file=sys.stderr)
+        return 2
+    logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
+                        format="%(levelname)s %(name)s: %(message)s")
+    try:
+        if args.command == "check":
+            return cmd_check(args)
+        if args.command == "solve":
+            return cmd_solve(args)
+        if args.command == "run":
+            return cmd_solve(args, shape_first=True)
+    except CaseError as exc:
+        print(f"cablefe: {exc}", file=sys.stderr)
+        return 2
+    except FileNotFoundError as exc:
+        print(f"cablefe: {exc.filename}: file not found", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("cablefe: interrupted; no partial files were left under final names", file=sys.stderr)
+        return 130
+    return 2
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,1132 @@
+"""Read and validate a case file (TOML) into a :class:`~cablefe.spec.CaseSpec`.
+
+The case file is described in the project's interface page; this module
+implements it exactly and adds the extensions listed below.  Every user
+mistake raises :class:`~cablefe.errors.CaseError` with the key path of the
+offending value and a message that says what was found and what was
+expected.  Key paths use 0-based array indices (``members[12].section``,
+``loads[3].force[2]``); keys that are not bare TOML keys are quoted
+(``shape.force_density."N*"``).  TOML syntax errors have the empty key and
+give the line and column.
+
+Values are converted to SI by :mod:`cablefe.io.units` (bare numbers in the
+file's ``[units]``, strings with their own unit).
+
+Extensions to the interface page
+--------------------------------
+``[node_table]`` and ``[[member_table]]``
+    Compact form for big models, alongside ``[nodes]`` and ``[[members]]``::
+
+        [node_table]            # equal-length arrays; bare numbers, file length unit
+        ids = ["N0", "N1", "N2"]
+        x = [0.0, 1.0, 2.0]
+        y = [0.0, 0.0, 0.0]
+        z = [5.0, 5.0, 5.0]
+
+        [[member_table]]        # one group per type and section
+        type = "cable"
+        section = "net"
+        ids = ["E0", "E1"]
+        i = ["N0", "N1"]
+        j = ["N1", "N2"]
+        length0 = [1.0, 1.0]    # optional: one value for all, or one per member
+        # pretension = 5.0      # optional, instead of length0
+        # tension_only = true   # bar groups only
+
+    Members of a table take no ``divide``, ``up`` or ``interior``; they give
+    the same :class:`~cablefe.spec.Member` objects as the long form, with
+    key ``member_table[g].ids[k]``.
+``interior = [[x, y, z], ...]`` on a divided member
+    Coordinates of its ``divide - 1`` interior nodes (written by
+    form-finding so that a shaped case reloads in its shape).  Without it the
+    interior nodes lie evenly on the straight chord.
+``[shape]``: ``fabrication_temperature`` (temperature difference of the
+    fabrication state from the analysis state, K) and ``max_iterations``.
+``[analysis]``: ``solver`` (one of :data:`SOLVERS`) and ``max_cuts``
+    (how often an increment may be halved).
+``[design]``, ``[studies]``, ``[modes]``, ``[report]``
+    Accepted as tables (or arrays of tables) and passed through unvalidated
+    in ``CaseSpec.extra`` for the features that read them.
+
+Interior nodes of a divided member are named ``<member id>.<k>``, k = 1 …
+divide - 1 from the first node; they are valid wherever a node id is
+(supports, loads, paths, targets, ends of *other* members) but they are not
+put in ``CaseSpec.nodes``, which holds the declared nodes only: see
+:func:`interior_nodes`.
+
+Prescribed displacements: a component on a restrained direction is kept
+(``0`` included); a zero on an unrestrained direction becomes ``None`` (not
+prescribed); a non-zero one is an error.
+"""
+from __future__ import annotations
+
+import difflib
+import fnmatch
+import json
+import math
+import re
+from pathlib import Path
+from typing import Any, Iterable, Mapping, Sequence
+
+import numpy as np
+
+try:  # the compiled tomli wheels parse big compact tables ~2.5x faster than tomllib
+    import tomli as _toml
+except ImportError:  # pragma: no cover - depends on the installation
+    import tomllib as _toml
+
+from ..errors import CaseError
+from ..spec import (
+    DIRECTIONS,
+    MEMBER_TYPES,
+    AdjustGroup,
+    AnalysisSettings,
+    CaseSpec,
+    Combination,
+    Material,
+    Member,
+    MemberLoad,
+    NodalLoad,
+    PatchLoad,
+    PrescribedDisplacement,
+    Section,
+    SelfWeight,
+    ShapeSpec,
+    TemperatureLoad,
+    support_mask,
+)
+from .units import STANDARD_GRAVITY, Quantities, describe_value, unit_system
+
+__all__ = [
+    "read_case",
+    "parse_case",
+    "interior_node_ids",
+    "interior_nodes",
+    "match_members",
+    "key_join",
+    "TOP_LEVEL_KEYS",
+    "PASS_THROUGH_KEYS",
+    "SHAPE_METHODS",
+    "SOLVERS",
+]
+
+TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
+                  "loads", "combinations", "shape", "analysis", "node_table", "member_table")
+PASS_THROUGH_KEYS = ("design", "studies", "modes", "report")
+MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha")
+SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J")
+MEMBER_KEYS = ("id", "type", "nodes", "section", "length0", "pretension", "tension_only",
+               "divide", "up", "interior")
+NODE_TABLE_KEYS = ("ids", "x", "y", "z")
+MEMBER_TABLE_KEYS = ("type", "section", "tension_only", "length0", "pretension", "ids", "i", "j")
+LOAD_KEYS = ("case", "self_weight", "factor", "node", "force", "moment", "displacement",
+             "rotation", "members", "per_length", "temperature", "path", "start", "end")
+COMBINATION_KEYS = ("name", "factors")
+SHAPE_KEYS = ("method", "permanent", "tolerance", "targets", "adjust", "force_density",
+              "fabrication_temperature", "max_iterations")
+ADJUST_KEYS = ("members", "together")
+ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts")
+SHAPE_METHODS = ("target", "force-density")
+SOLVERS = ("auto", "superlu", "splu-default", "pardiso")
+
+LOAD_FORMS = ("self_weight = true [, factor]; node + force and/or moment; "
+              "node + displacement [, rotation]; members + per_length; members + temperature; "
+              "path + per_length [, start, end]")
+
+#: A member is of zero length when its chord is below this fraction of the
+#: model's size: coordinates typed with a few digits differ by far more, so
+#: anything closer is a duplicated point, not a short member.
+ZERO_LENGTH_FRACTION = 1e-9
+
+_BARE_KEY = re.compile(r"[A-Za-z0-9_-]+\Z")
+_GLOB_CHARS = re.compile(r"[*?\[]")
+
+
+# ---------------------------------------------------------------------------
+# public helpers
+# ---------------------------------------------------------------------------
+
+def key_join(parent: str, name: str) -> str:
+    """Key path of ``name`` inside ``parent``, quoting non-bare TOML keys."""
+    part = name if _BARE_KEY.match(name) else json.dumps(name, ensure_ascii=False)
+    return f"{parent}.{part}" if parent else part
+
+
+def interior_node_ids(member_id: str, divide: int) -> tuple[str, ...]:
+    """Ids ``<member id>.<k>``, k = 1 … divide-1, of a divided member's interior nodes."""
+    return tuple(f"{member_id}.{k}" for k in range(1, divide))
+
+
+def interior_nodes(spec: CaseSpec) -> dict[str, tuple[float, float, float]]:
+    """Positions (m) of the interior nodes of every divided member.
+
+    Taken from ``Member.interior`` when given, else evenly spaced on the
+    straight chord between the member's end nodes (which may themselves be
+    interior nodes of other members).
+
+    Raises
+    ------
+    CaseError
+        Dangling end nodes, or divided members whose ends refer to each
+        other's interior nodes in a loop.
+    """
+    owners = {}
+    for index, member in enumerate(spec.members):
+        for k, nid in enumerate(interior_node_ids(member.id, member.divide), start=1):
+            owners[nid] = (index, k)
+    positions = _interior_positions(spec.members, owners, spec.nodes)
+    return {nid: positions[nid] for nid in owners}
+
+
+def match_members(patterns: str | Iterable[str], member_ids: Sequence[str]) -> list[str]:
+    """Member ids equal to, or matching (:func:`fnmatch.fnmatchcase`), any pattern.
+
+    Parameters
+    ----------
+    patterns : str or iterable of str
+        Ids or shell-style patterns (``"H*"``, ``"D[0-9]"``).
+    member_ids : sequence of str
+        All member ids, in case order.
+
+    Returns
+    -------
+    list of str
+        Matching ids in case order.
+    """
+    if isinstance(patterns, str):
+        patterns = (patterns,)
+    literal = set(patterns)  # exact ids first: an id may itself contain "[" or "*"
+    regexes = [re.compile(fnmatch.translate(p)) for p in literal if _GLOB_CHARS.search(p)]
+    return [m for m in member_ids if m in literal or any(rx.match(m) for rx in regexes)]
+
+
+# ---------------------------------------------------------------------------
+# entry points
+# ---------------------------------------------------------------------------
+
+def read_case(path: str | Path) -> CaseSpec:
+    """Read, validate and convert a TOML case file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The case file.
+
+    Returns
+    -------
+    CaseSpec
+        In SI units, with ``source=str(path)`` and ``raw`` the parsed TOML.
+
+    Raises
+    ------
+    CaseError
+        Any problem with the file, with ``file=str(path)``.
+    """
+    source = str(path)
+    try:
+        text = Path(path).read_bytes().decode("utf-8-sig")
+    except OSError as exc:
+        raise CaseError("", f"cannot read the case file ({exc.strerror or exc})", file=source) from None
+    except UnicodeDecodeError as exc:
+        raise CaseError("", f"not a UTF-8 text file (byte {exc.start}): a TOML case must be UTF-8",
+                        file=source) from None
+    try:
+        data = _toml.loads(text)
+    except _toml.TOMLDecodeError as exc:
+        raise CaseError("", _syntax_message(exc, text), file=source) from None
+    return parse_case(data, source)
+
+
+def parse_case(data: Mapping[str, Any], source: str | None = None) -> CaseSpec:
+    """Validate and convert an already parsed case (the dict TOML gives).
+
+    Parameters
+    ----------
+    data : mapping
+        The parsed case; it is not modified, and is kept by reference as
+        ``CaseSpec.raw``.
+    source : str, optional
+        File name for error messages and ``CaseSpec.source``.
+
+    Returns
+    -------
+    CaseSpec
+        In SI units.
+
+    Raises
+    ------
+    CaseError
+        The first problem found, with its key path (and ``file=source``).
+    """
+    try:
+        return _Reader(data, source).read()
+    except CaseError as exc:
+        if source is not None and exc.file is None:
+            raise exc.with_file(source) from None
+        raise
+
+
+def _syntax_message(exc: Exception, text: str) -> str:
+    """'TOML syntax error at line L, column C: …' from a TOMLDecodeError."""
+    message = str(exc)
+    line = getattr(exc, "lineno", None)
+    column = getattr(exc, "colno", None)
+    detail = getattr(exc, "msg", None)
+    found = re.search(r"\s*\(at line (\d+), column (\d+)\)\s*$", message)
+    if found:
+        detail = detail or message[: found.start()]
+        line, column = int(found.group(1)), int(found.group(2))
+    detail = detail or message
+    hint = ""
+    declared = re.match(r"Cannot declare \((.*)\) twice", detail)
+    if declared:
+        name = ".".join(part.strip().strip("'\"") for part in declared.group(1).split(",") if part.strip())
+        hint = f"; table [{name}] appears twice (each table may be declared once)"
+    elif detail.startswith("Cannot overwrite a value") and line is not None:
+        lines = text.splitlines()
+        if 0 < line <= len(lines) and "=" in lines[line - 1]:
+            name = lines[line - 1].split("=", 1)[0].strip()
+            hint = f'; key {name} is defined twice (ids must be unique)'
+        else:
+            hint = "; a key is defined twice (ids must be unique)"
+    if line is None:
+        return f"TOML syntax error: {detail}{hint}"
+    return f"TOML syntax error at line {line}, column {column}: {detail}{hint}"
+
+
+# ---------------------------------------------------------------------------
+# small validators
+# ---------------------------------------------------------------------------
+
+def _show(value: Any) -> str:
+    """A value as the engineer typed it, for messages."""
+    if isinstance(value, str):
+        return f'"{value}"'
+    if isinstance(value, bool):
+        return str(value).lower()
+    return repr(value)
+
+
+def _suggest(name: str, known: Iterable[str], limit: int = 20000) -> str:
+    known = list(known)
+    if len(known) > limit:
+        return ""
+    close = difflib.get_close_matches(name, known, n=1)
+    return f' (did you mean "{close[0]}"?)' if close else ""
+
+
+def _check_keys(table: Mapping, key: str, known: Sequence[str]) -> None:
+    for name in table:
+        if name not in known:
+            raise CaseError(key_join(key, name), f'unknown key "{name}" (known: {", ".join(known)})'
+                            + _suggest(name, known))
+
+
+def _table(value: Any, key: str, what: str = "a table") -> Mapping:
+    if not isinstance(value, Mapping):
+        raise CaseError(key, f"expected {what}, found {describe_value(value)}")
+    return value
+
+
+def _string(value: Any, key: str, what: str = "a string") -> str:
+    if not isinstance(value, str):
+        raise CaseError(key, f"expected {what}, found {describe_value(value)}")
+    return value
+
+
+def _name(value: Any, key: str, what: str) -> str:
+    """A non-empty id or name."""
+    text = _string(value, key, f"{what} (a string)")
+    if not text.strip():
+        raise CaseError(key, f"expected {what}, found an empty string")
+    return text
+
+
+def _bool(value: Any, key: str) -> bool:
+    if not isinstance(value, bool):
+        raise CaseError(key, f"expected true or false, found {describe_value(value)}")
+    return value
+
+
+def _integer(value: Any, key: str, minimum: int) -> int:
+    if isinstance(value, bool) or not isinstance(value, int) or value < minimum:
+        what = "a positive integer" if minimum == 1 else f"an integer >= {minimum}"
+        raise CaseError(key, f"expected {what}, found {describe_value(value)}")
+    return int(value)
+
+
+def _require(table: Mapping, name: str, key: str, what: str) -> Any:
+    if name not in table:
+        raise CaseError(key_join(key, name), f"missing: {what}")
+    return table[name]
+
+
+def _names_list(value: Any, key: str, what: str, allow_single: bool = False) -> tuple[str, ...]:
+    if allow_single and isinstance(value, str):
+        value = [value]
+    if not isinstance(value, list):
+        single = " or a single string" if allow_single else ""
+        raise CaseError(key, f"expected an array of {what}{single}, found {describe_value(value)}")
+    if not value:
+        raise CaseError(key, f"expected an array of {what}, found an empty array")
+    return tuple(_name(v, f"{key}[{k}]", what) for k, v in enumerate(value))
+
+
+# ---------------------------------------------------------------------------
+# the reader
+# ---------------------------------------------------------------------------
+
+class _Reader:
+    """One pass over a parsed case; raises at the first problem."""
+
+    def __init__(self, data: Mapping[str, Any], source: str | None):
+        self.data = data
+        self.source = source
+
+    # -- quantities ---------------------------------------------------------
+    def quantity(self, value, kind, key, sign: str | None = None) -> float:
+        """SI value; ``sign`` is None, "positive" or "nonnegative"."""
+        result = self.q.to_si(value, kind, key)
+        if sign == "positive" and not result > 0.0:
+            raise CaseError(key, f"expected a positive value, found {_show(value)}")
+        if sign == "nonnegative" and result < 0.0:
+            raise CaseError(key, f"expected a value >= 0, found {_show(value)}")
+        return result
+
+    def optional(self, table, name, kind, key, sign=None, default=None):
+        if name not in table:
+            return default
+        return self.quantity(table[name], kind, key_join(key, name), sign)
+
+    # -- whole case ---------------------------------------------------------
+    def read(self) -> CaseSpec:
+        data = self.data
+        if not isinstance(data, Mapping):
+            raise CaseError("", f"expected a table of keys at the top level, found {describe_value(data)}")
+        _check_keys(data, "", TOP_LEVEL_KEYS + PASS_THROUGH_KEYS)
+        title = _string(data.get("title", ""), "title")
+        self.units = unit_system(data.get("units"), "units")
+        self.q = Quantities(self.units)
+
+        materials = self.materials(data.get("materials", {}))
+        sections = self.sections(data.get("sections", {}), materials)
+        nodes, node_keys = self.nodes(data.get("nodes", {}), data.get("node_table"))
+        self.declared = nodes
+        members = self.members(data.get("members", []), data.get("member_table", []),
+                               nodes, node_keys, sections, materials)
+        self.member_list = members
+        self.member_ids = [m.id for m in members]
+        self.member_id_set = set(self.member_ids)
+        supports = self.supports(data.get("supports", {}))
+        self.supports_map = supports
+        loads = self.loads(data.get("loads", []))
+        cases = {load.case for load in loads}
+        combinations = self.combinations(data.get("combinations", []), cases)
+        shape = self.shape(data["shape"], cases) if "shape" in data else None
+        analysis = self.analysis(data.get("analysis", {}))
+        extra = {}
+        for name in PASS_THROUGH_KEYS:
+            if name in data:
+                value = data[name]
+                if not (isinstance(value, Mapping)
+                        or (isinstance(value, list) and all(isinstance(v, Mapping) for v in value))):
+                    raise CaseError(name, f"expected a table or an array of tables, found {describe_value(value)}")
+                extra[name] = value
+        return CaseSpec(title=title, units=self.units, materials=materials, sections=sections,
+                        nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
+                        combinations=tuple(combinations), shape=shape, analysis=analysis,
+                        source=self.source, raw=data, extra=extra)
+
+    # -- materials and sections ----------------------------------------------
+    def materials(self, value) -> dict[str, Material]:
+        out = {}
+        for name, entry in _table(value, "materials", "a table of materials").items():
+            key = key_join("materials", name)
+            entry = _table(entry, key, f'a table for material "{name}"')
+            _check_keys(entry, key, MATERIAL_KEYS)
+            E = self.quantity(_require(entry, "E", key, "the elastic modulus E, e.g. E = \"160 GPa\""),
+                              "stress", key_join(key, "E"), "positive")
+            G = self.optional(entry, "G", "stress", key, "positive", default=E / 2.6)
+            if "unit_weight" in entry and "density" in entry:
+                raise CaseError(key_join(key, "density"), "give either unit_weight or density, not both")
+            if "density" in entry:
+                unit_weight = self.quantity(entry["density"], "density", key_join(key, "density"),
+                                            "nonnegative") * STANDARD_GRAVITY
+            else:
+                unit_weight = self.optional(entry, "unit_weight", "unit_weight", key, "nonnegative", 0.0)
+            alpha = self.optional(entry, "alpha", "thermal_expansion", key, default=0.0)
+            out[name] = Material(name=name, E=E, G=G, unit_weight=unit_weight, alpha=alpha)
+        return out
+
+    def sections(self, value, materials) -> dict[str, Section]:
+        out = {}
+        for name, entry in _table(value, "sections", "a table of sections").items():
+            key = key_join("sections", name)
+            entry = _table(entry, key, f'a table for section "{name}"')
+            _check_keys(entry, key, SECTION_KEYS)
+            material = _name(_require(entry, "material", key, 'the material name, e.g. material = "strand"'),
+                             key_join(key, "material"), "a material name")
+            if material not in materials:
+                raise CaseError(key_join(key, "material"), f'no material named "{material}" '
+                                f'(known: {", ".join(materials) or "none"})' + _suggest(material, materials))
+            area = self.quantity(_require(entry, "area", key, 'the metallic area, e.g. area = "1960 mm^2"'),
+                                 "area", key_join(key, "area"), "positive")
+            out[name] = Section(
+                name=name, material=material, area=area,
+                weight=self.optional(entry, "weight", "force_per_length", key, "nonnegative"),
+                breaking_load=self.optional(entry, "breaking_load", "force", key, "positive"),
+                diameter=self.optional(entry, "diameter", "length", key, "positive"),
+                Iy=self.optional(entry, "Iy", "second_moment", key, "positive"),
+                Iz=self.optional(entry, "Iz", "second_moment", key, "positive"),
+                J=self.optional(entry, "J", "second_moment", key, "positive"),
+            )
+        return out
+
+    # -- nodes ----------------------------------------------------------------
+    def nodes(self, long_form, compact) -> tuple[dict[str, tuple[float, float, float]], dict[str, str]]:
+        """Declared nodes (m) and the key path of each (for duplicate-id messages)."""
+        nodes: dict[str, tuple[float, float, float]] = {}
+        keys: dict[str, str] = {}
+        for name, value in _table(long_form, "nodes", "a table of node coordinates").items():
+            key = key_join("nodes", name)
+            if not name.strip():
+                raise CaseError(key, "a node id must not be empty")
+            if isinstance(value, Mapping):
+                raise CaseError(key, f'expected [x, y, z], found a table (an id with a dot must be quoted: "{name}.1" = [x, y, z])')
+            nodes[name] = self.q.vector(value, "length", key)
+            keys[name] = key
+        if compact is None:
+            return nodes, keys
+        table = _table(compact, "node_table", "a table with arrays ids, x, y, z")
+        _check_keys(table, "node_table", NODE_TABLE_KEYS)
+        ids = _string_array(_require(table, "ids", "node_table", "the array of node ids"), "node_table.ids")
+        columns = [_number_array(_require(table, c, "node_table", f"the array of {c} coordinates"),
+                                 f"node_table.{c}", len(ids), "ids") for c in "xyz"]
+        xyz = np.stack(columns, axis=1) * self.q.bare_factor("length")
+        _unique(ids, "node_table.ids", "node id", nodes, keys)
+        nodes.update(zip(ids, map(tuple, xyz.tolist())))
+        keys.update((n, f"node_table.ids[{k}]") for k, n in enumerate(ids))
+        return nodes, keys
+
+    # -- members --------------------------------------------------------------
+    def members(self, long_form, compact, nodes, node_keys, sections, materials) -> list[Member]:
+        if not isinstance(long_form, list):
+            raise CaseError("members", f"expected an array of tables ([[members]]), found {describe_value(long_form)}")
+        records = [self.member_entry(entry, f"members[{k}]", sections) for k, entry in enumerate(long_form)]
+        if isinstance(compact, Mapping):
+            compact = [compact]
+        if not isinstance(compact, list):
+            raise CaseError("member_table", f"expected an array of tables ([[member_table]]), "
+                            f"found {describe_value(compact)}")
+        groups = [self.member_group(entry, f"member_table[{g}]", sections) for g, entry in enumerate(compact)]
+
+        # unique member ids over both forms
+        first_key: dict[str, str] = {}
+        for rec in records:
+            if rec["id"] in first_key:
+                raise CaseError(f"{rec['key']}.id", f'duplicate member id "{rec["id"]}" (first at {first_key[rec["id"]]})')
+            first_key[rec["id"]] = rec["key"]
+        for group in groups:
+            _unique(group["ids"], f"{group['key']}.ids", "member id", first_key, first_key)
+            first_key.update((m, f"{group['key']}.ids[{k}]") for k, m in enumerate(group["ids"]))
+
+        # interior nodes of divided members
+        owners: dict[str, tuple[int, int]] = {}
+        for index, rec in enumerate(records):
+            for k, nid in enumerate(interior_node_ids(rec["id"], rec["divide"]), start=1):
+                if nid in nodes:
+                    raise CaseError(node_keys[nid], f'duplicate node id "{nid}": it is also interior node {k} '
+                                    f'of divided member "{rec["id"]}" ({rec["key"]}.divide)')
+                owners[nid] = (index, k)
+        self.owners = owners
+        known = nodes.keys() | owners.keys()
+        for rec in records:
+            for end, name in enumerate(rec["nodes"]):
+                if name not in nodes and name not in owners:
+                    raise CaseError(f"{rec['key']}.nodes[{end}]", f'no node named "{name}"'
+                                    + _suggest(name, known))
+                if name in owners and records[owners[name][0]] is rec:
+                    raise CaseError(f"{rec['key']}.nodes[{end}]", f'"{name}" is an interior node of this '
+                                    "member itself; a member must end at other nodes")
+            if rec["nodes"][0] == rec["nodes"][1]:
+                raise CaseError(f"{rec['key']}.nodes", f'both ends are node "{rec["nodes"][0]}"; '
+                                "a member needs two different nodes (zero length)")
+
+        positions = _interior_positions(records, owners, nodes)
+        all_ids = list(nodes) + list(owners)
+        self.index = {n: k for k, n in enumerate(all_ids)}
+        coords = np.array(list(nodes.values()) + [positions[n] for n in owners], dtype=float).reshape(-1, 3)
+        self.coords = coords
+        extent = float(np.linalg.norm(np.ptp(coords, axis=0))) if len(coords) else 0.0
+        tiny = ZERO_LENGTH_FRACTION * max(extent, 1.0)
+        self.rotation_nodes: set[str] = set()
+
+        members = []
+        for rec in records:
+            members.append(self.finish_member(rec, coords, tiny, sections, materials))
+        for group in groups:
+            members.extend(self.finish_group(group, coords, tiny, sections, materials))
+        return members
+
+    def member_entry(self, entry, key, sections) -> dict:
+        entry = _table(entry, key)
+        _check_keys(entry, key, MEMBER_KEYS)
+        rec = {"key": key}
+        rec["id"] = _name(_require(entry, "id", key, 'the member id, e.g. id = "M1"'), f"{key}.id", "a member id")
+        rec["type"] = _member_type(_require(entry, "type", key, f'the member type ({" | ".join(MEMBER_TYPES)})'),
+                                   f"{key}.type")
+        ends = _require(entry, "nodes", key, 'the two end nodes, e.g. nodes = ["A", "B"]')
+        if not isinstance(ends, list) or len(ends) != 2:
+            found = f"{len(ends)} items" if isinstance(ends, list) else describe_value(ends)
+            raise CaseError(f"{key}.nodes", f"expected an array of two node ids, found {found}")
+        rec["nodes"] = tuple(_name(n, f"{key}.nodes[{k}]", "a node id") for k, n in enumerate(ends))
+        rec["section"] = _section_name(_require(entry, "section", key, 'the section name, e.g. section = "main"'),
+                                       f"{key}.section", sections)
+        _type_specific(entry, key, rec["type"])
+        rec["tension_only"] = _bool(entry["tension_only"], f"{key}.tension_only") if "tension_only" in entry else False
+        rec["length0"] = self.optional(entry, "length0", "length", key, "positive")
+        rec["pretension"] = self.optional(entry, "pretension", "force", key)
+        rec["divide"] = _integer(entry["divide"], f"{key}.divide", 1) if "divide" in entry else 1
+        rec["up"] = None
+        if "up" in entry:
+            up = self.q.vector(entry["up"], "dimensionless", f"{key}.up")
+            if not any(up):
+                raise CaseError(f"{key}.up", "the up vector must not be zero")
+            rec["up"] = up
+        rec["interior"] = None
+        if "interior" in entry:
+            rec["interior"] = self.interior_coordinates(entry["interior"], rec["divide"], f"{key}.interior")
+        return rec
+
+    def interior_coordinates(self, value, divide, key):
+        if divide < 2:
+            raise CaseError(key, "interior coordinates need divide >= 2")
+        if not isinstance(value, list) or len(value) != divide - 1:
+            found = f"{len(value)}" if isinstance(value, list) else describe_value(value)
+            raise CaseError(key, f"expected {divide - 1} points [x, y, z] (divide - 1), found {found}")
+        return tuple(self.q.vector(p, "length", f"{key}[{k}]") for k, p in enumerate(value))
+
+    def member_group(self, entry, key, sections) -> dict:
+        entry = _table(entry, key)
+        _check_keys(entry, key, MEMBER_TABLE_KEYS)
+        group = {"key": key}
+        group["type"] = _member_type(_require(entry, "type", key, f'the member type ({" | ".join(MEMBER_TYPES)})'),
+                                     f"{key}.type")
+        group["section"] = _section_name(_require(entry, "section", key, "the section name"),
+                                         f"{key}.section", sections)
+        _type_specific(entry, key, group["type"])
+        group["tension_only"] = _bool(entry["tension_only"], f"{key}.tension_only") if "tension_only" in entry else False
+        ids = _string_array(_require(entry, "ids", key, "the array of member ids"), f"{key}.ids")
+        group["ids"] = ids
+        group["i"] = _string_array(_require(entry, "i", key, "the array of first nodes"), f"{key}.i", len(ids))
+        group["j"] = _string_array(_require(entry, "j", key, "the array of last nodes"), f"{key}.j", len(ids))
+        group["pretension_key"] = ((lambda k: f"{key}.pretension[{k}]") if isinstance(entry.get("pretension"), list)
+                                   else (lambda k: f"{key}.pretension"))
+        for name, kind, sign in (("length0", "length", "positive"), ("pretension", "force", None)):
+            value = entry.get(name)
+            if isinstance(value, list):
+                values = _number_array(value, f"{key}.{name}", len(ids), "ids") * self.q.bare_factor(kind)
+                if sign == "positive" and not (values > 0).all():
+                    k = int(np.flatnonzero(~(values > 0))[0])
+                    raise CaseError(f"{key}.{name}[{k}]", f"expected a positive value, found {_show(value[k])}")
+                group[name] = values
+            elif value is not None:
+                group[name] = np.full(len(ids), self.quantity(value, kind, f"{key}.{name}", sign))
+            else:
+                group[name] = None
+        return group
+
+    def finish_member(self, rec, coords, tiny, sections, materials) -> Member:
+        key = rec["key"]
+        a, b = rec["nodes"]
+        axis = coords[self.index[b]] - coords[self.index[a]]
+        if rec["interior"] is not None:  # the first element is the shortest chord that could vanish
+            chain = [coords[self.index[a]], *map(np.asarray, rec["interior"]), coords[self.index[b]]]
+            pieces = np.linalg.norm(np.diff(np.asarray(chain), axis=0), axis=1)
+            if pieces.min() <= tiny:
+                raise CaseError(f"{key}.interior", f"two consecutive nodes of member \"{rec['id']}\" coincide "
+                                "(zero-length element)")
+        if np.linalg.norm(axis) <= tiny:
+            raise CaseError(f"{key}.nodes", f'zero length: nodes "{a}" and "{b}" coincide')
+        section = sections[rec["section"]]
+        self.check_strength(rec["type"], rec["tension_only"], rec["pretension"], section, materials,
+                            key, rec["id"], lambda k: f"{key}.pretension")
+        if rec["up"] is not None:
+            up = np.asarray(rec["up"])
+            if np.linalg.norm(np.cross(up, axis)) <= 1e-9 * np.linalg.norm(up) * np.linalg.norm(axis):
+                raise CaseError(f"{key}.up", f"up = {list(rec['up'])} is parallel to the member axis "
+                                f'"{a}" -> "{b}"; it must fix the direction of the local z axis')
+        if rec["type"] == "beam":
+            self.rotation_nodes.update((a, b, *interior_node_ids(rec["id"], rec["divide"])))
+        return Member(id=rec["id"], type=rec["type"], nodes=(a, b), section=rec["section"], key=key,
+                      length0=rec["length0"], pretension=rec["pretension"], tension_only=rec["tension_only"],
+                      divide=rec["divide"], up=rec["up"], interior=rec["interior"])
+
+    def check_strength(self, mtype, tension_only, pretension, section, materials, key, member_id,
+                       pretension_key):
+        """Section needs of a member type, and a pretension the member can take.
+
+        ``pretension`` is None, a float or an array (member table);
+        ``pretension_key(k)`` is the key path of entry k.
+        """
+        if mtype == "beam":
+            missing = [n for n in ("Iy", "Iz", "J") if getattr(section, n) is None]
+            if missing:
+                raise CaseError(f"{key}.section", f'section "{section.name}" has no {", ".join(missing)}; '
+                                f'beam member "{member_id}" needs Iy, Iz and J on its section')
+        if pretension is None:
+            return
+        pretension = np.asarray(pretension, dtype=float)
+        EA = materials[section.material].E * section.area
+        if mtype == "cable" or tension_only:
+            bad = np.flatnonzero(pretension < 0)
+            if bad.size:
+                raise CaseError(pretension_key(int(bad[0])),
+                                f"a {'cable' if mtype == 'cable' else 'tension-only bar'} cannot be pretensioned "
+                                f"in compression, found {pretension.flat[bad[0]]:.6g} N")
+        bad = np.flatnonzero(1.0 + pretension / EA <= 0)
+        if bad.size:
+            raise CaseError(pretension_key(int(bad[0])),
+                            f"compression {pretension.flat[bad[0]]:.6g} N reaches EA = {EA:.6g} N: "
+                            "no unstressed length gives it")
+
+    def finish_group(self, group, coords, tiny, sections, materials) -> list[Member]:
+        key = group["key"]
+        rows = []
+        for end in ("i", "j"):
+            names = group[end]
+            try:
+                rows.append(np.fromiter(map(self.index.__getitem__, names), dtype=np.int64, count=len(names)))
+            except KeyError as exc:
+                k = names.index(exc.args[0])
+                raise CaseError(f"{key}.{end}[{k}]", f'no node named "{names[k]}"'
+                                + _suggest(names[k], self.index)) from None
+        lengths = np.linalg.norm(coords[rows[1]] - coords[rows[0]], axis=1)
+        bad = np.flatnonzero(lengths <= tiny)
+        if bad.size:
+            k = int(bad[0])
+            a, b = group["i"][k], group["j"][k]
+            what = f'both ends are node "{a}"' if a == b else f'nodes "{a}" and "{b}" coincide'
+            raise CaseError(f"{key}.ids[{k}]", f'member "{group["ids"][k]}" has zero length: {what}')
+        section = sections[group["section"]]
+        self.check_strength(group["type"], group["tension_only"], group["pretension"], section, materials,
+                            key, group["ids"][0], group["pretension_key"])
+        n = len(group["ids"])
+        if group["type"] == "beam":
+            self.rotation_nodes.update(group["i"])
+            self.rotation_nodes.update(group["j"])
+        length0 = group["length0"].tolist() if group["length0"] is not None else [None] * n
+        pretension = group["pretension"].tolist() if group["pretension"] is not None else [None] * n
+        keys = [f"{key}.ids[{k}]" for k in range(n)]
+        mtype, section_name, tension_only = group["type"], group["section"], group["tension_only"]
+        return [Member(mid, mtype, (a, b), section_name, mkey, l0, pt, tension_only)
+                for mid, a, b, mkey, l0, pt in zip(group["ids"], group["i"], group["j"], keys,
+                                                   length0, pretension)]
+
+    # -- supports ---------------------------------------------------------------
+    def supports(self, value) -> dict[str, tuple[bool, ...]]:
+        out = {}
+        for name, code in _table(value, "supports", "a table of support codes").items():
+            key = key_join("supports", name)
+            self.node(name, key)
+            if not isinstance(code, str) or support_mask(code) is None:
+                raise CaseError(key, f"unknown support code {_show(code) if isinstance(code, str) else describe_value(code)} "
+                                '(valid: any space-separated set of x y z rx ry rz, or "all", or "pin")')
+            out[name] = support_mask(code)
+        return out
+
+    def node(self, name, key) -> str:
+        """Check that a node id exists (declared or interior)."""
+        if not isinstance(name, str):
+            raise CaseError(key, f"expected a node id (a string), found {describe_value(name)}")
+        if name not in self.index:
+            raise CaseError(key, f'no node named "{name}"' + _suggest(name, self.index))
+        return name
+
+    def position(self, name) -> np.ndarray:
+        return self.coords[self.index[name]]
+
+    # -- loads ------------------------------------------------------------------
+    def loads(self, value) -> list:
+        if not isinstance(value, list):
+            raise CaseError("loads", f"expected an array of tables ([[loads]]), found {describe_value(value)}")
+        return [self.load(entry, f"loads[{k}]") for k, entry in enumerate(value)]
+
+    def load(self, entry, key):
+        entry = _table(entry, key)
+        _check_keys(entry, key, LOAD_KEYS)
+        case = _name(_require(entry, "case", key, 'the load case name, e.g. case = "dead"'), f"{key}.case",
+                     "a load case name")
+        present = set(entry) - {"case"}
+        kinds = [k for k in ("self_weight", "node", "members", "path") if k in entry]
+        forms = {
+            "self_weight": [{"self_weight", "factor"}],
+            "node": [{"node", "force", "moment"}, {"node", "displacement", "rotation"}],
+            "members": [{"members", "per_length"}, {"members", "temperature"}],
+            "path": [{"path", "per_length", "start", "end"}],
+        }
+        needed = {"node": ({"force", "moment"}, {"displacement", "rotation"}),
+                  "members": ({"per_length"}, {"temperature"}), "path": ({"per_length"},)}
+        valid = len(kinds) == 1 and any(present <= form for form in forms[kinds[0]])
+        if valid and kinds[0] in needed:
+            valid = any(present & must for must in needed[kinds[0]])
+        if not valid:
+            found = ", ".join(sorted(present)) or "nothing but case"
+            raise CaseError(key, f"cannot tell what load this is from its keys ({found}); valid forms: {LOAD_FORMS}")
+        kind = kinds[0]
+        if kind == "self_weight":
+            if entry["self_weight"] is not True:
+                raise CaseError(f"{key}.self_weight", f"expected true, found {describe_value(entry['self_weight'])} "
+                                "(leave the load out instead)")
+            return SelfWeight(case=case, key=key,
+                              factor=self.optional(entry, "factor", "dimensionless", key, default=1.0))
+        if kind == "node":
+            node = self.node(entry["node"], f"{key}.node")
+            if "force" in entry or "moment" in entry:
+                force = self.q.vector(entry["force"], "force", f"{key}.force") if "force" in entry else (0.0, 0.0, 0.0)
+                moment = None
+                if "moment" in entry:
+                    moment = self.q.vector(entry["moment"], "moment", f"{key}.moment")
+                    if any(moment) and node not in self.rotation_nodes:
+                        raise CaseError(f"{key}.moment", f'node "{node}" has no rotations (only nodes joined '
+                                        "to beams take moments)")
+                return NodalLoad(case=case, node=node, force=force, moment=moment, key=key)
+            return self.displacement(entry, case, node, key)
+        if kind == "members":
+            patterns = self.patterns(entry["members"], f"{key}.members")
+            if "per_length" in entry:
+                return MemberLoad(case=case, members=patterns, key=key,
+                                  per_length=self.q.vector(entry["per_length"], "force_per_length",
+                                                           f"{key}.per_length"))
+            return TemperatureLoad(case=case, members=patterns, key=key,
+                                   delta_t=self.quantity(entry["temperature"], "temperature_difference",
+                                                         f"{key}.temperature"))
+        return self.patch(entry, case, key)
+
+    def displacement(self, entry, case, node, key) -> PrescribedDisplacement:
+        mask = self.supports_map.get(node, (False,) * 6)
+        values = []
+        for name, kind, offset in (("displacement", "length", 0), ("rotation", "angle", 3)):
+            if name not in entry:
+                values.append(None)
+                continue
+            vector = self.q.vector(entry[name], kind, f"{key}.{name}")
+            kept = []
+            for d, v in enumerate(vector):
+                if mask[offset + d]:
+                    kept.append(v)
+                elif v == 0.0:
+                    kept.append(None)
+                else:
+                    code = " ".join(x for x, m in zip(DIRECTIONS, mask) if m) or "none"
+                    raise CaseError(f"{key}.{name}[{d}]", f'node "{node}" is not restrained in '
+                                    f"{DIRECTIONS[offset + d]} (its support: {code}); only restrained "
+                                    "directions can be given a movement")
+            values.append(tuple(kept))
+        displacement = values[0] if values[0] is not None else (None, None, None)
+        return PrescribedDisplacement(case=case, node=node, displacement=displacement, rotation=values[1], key=key)
+
+    def patterns(self, value, key) -> tuple[str, ...]:
+        patterns = _names_list(value, key, "member ids or patterns", allow_single=True)
+        for k, pattern in enumerate(patterns):
+            if pattern in self.member_id_set:
+                continue
+            if _GLOB_CHARS.search(pattern):
+                rx = re.compile(fnmatch.translate(pattern))
+                if any(map(rx.match, self.member_ids)):
+                    continue
+            where = f"{key}[{k}]" if isinstance(value, list) else key
+            raise CaseError(where, f'"{pattern}" matches no member' + _suggest(pattern, self.member_id_set))
+        return patterns
+
+    def joined_pairs(self) -> set[tuple[str, str]]:
+        """Node pairs joined by an element (interior chains included), built on first use."""
+        if getattr(self, "_pairs", None) is None:
+            pairs = set()
+            for m in self.member_list:
+                chain = (m.nodes[0], *interior_node_ids(m.id, m.divide), m.nodes[1])
+                for a, b in zip(chain[:-1], chain[1:]):
+                    pairs.add((a, b) if a < b else (b, a))
+            self._pairs = pairs
+        return self._pairs
+
+    def patch(self, entry, case, key) -> PatchLoad:
+        path = _names_list(entry["path"], f"{key}.path", "node ids")
+        if len(path) < 2:
+            raise CaseError(f"{key}.path", f"a path needs at least two nodes, found {len(path)}")
+        for k, name in enumerate(path):
+            self.node(name, f"{key}.path[{k}]")
+        pairs = self.joined_pairs()
+        for k, (a, b) in enumerate(zip(path[:-1], path[1:])):
+            if ((a, b) if a < b else (b, a)) not in pairs:
+                raise CaseError(f"{key}.path[{k + 1}]", f'nodes "{a}" and "{b}" are not joined by a member '
+                                "(consecutive path nodes must be the two ends of one element)")
+        points = self.coords[[self.index[n] for n in path]]
+        total = float(np.linalg.norm(np.diff(points, axis=0), axis=1).sum())
+        start = self.optional(entry, "start", "length", key, default=0.0)
+        end = self.optional(entry, "end", "length", key)
+        # a path length typed from a drawing may differ from the float sum in the last digits
+        slack = 1e-9 * max(total, 1.0)
+        if start < 0.0 or start >= (total if end is None else end):
+            limit = "the path length" if end is None else "end"
+            raise CaseError(f"{key}.start", f"expected 0 <= start < {limit}, found {_show(entry['start'])} "
+                            f"(path length {total:.6g} m)")
+        if end is not None:
+            if end > total + slack:
+                raise CaseError(f"{key}.end", f"end = {_show(entry['end'])} is beyond the path length "
+                                f"{total:.6g} m")
+            end = min(end, total)
+        per_length = self.q.vector(entry["per_length"], "force_per_length", f"{key}.per_length")
+        return PatchLoad(case=case, path=path, per_length=per_length, start=start, end=end, key=key)
+
+    # -- combinations, shape, analysis -----------------------------------------
+    def combinations(self, value, cases) -> list[Combination]:
+        if not isinstance(value, list):
+            raise CaseError("combinations", f"expected an array of tables ([[combinations]]), "
+                            f"found {describe_value(value)}")
+        out, seen = [], {}
+        for k, entry in enumerate(value):
+            key = f"combinations[{k}]"
+            entry = _table(entry, key)
+            _check_keys(entry, key, COMBINATION_KEYS)
+            name = _name(_require(entry, "name", key, "the combination name"), f"{key}.name", "a combination name")
+            if name in seen:
+                raise CaseError(f"{key}.name", f'duplicate combination name "{name}" (first at {seen[name]})')
+            seen[name] = key
+            factors_key = f"{key}.factors"
+            table = _table(_require(entry, "factors", key, "the factors, e.g. factors = { dead = 1.0 }"),
+                           factors_key, "an inline table of load case = factor")
+            if not table:
+                raise CaseError(factors_key, "expected at least one load case = factor, found an empty table")
+            factors = {}
+            for case, factor in table.items():
+                fkey = key_join(factors_key, case)
+                if case not in cases:
+                    raise CaseError(fkey, f'no load defines the load case "{case}" '
+                                    f'(known: {", ".join(sorted(cases)) or "none"})' + _suggest(case, cases))
+                factors[case] = self.quantity(factor, "dimensionless", fkey)
+            out.append(Combination(name=name, factors=factors, key=key))
+        return out
+
+    def shape(self, value, cases) -> ShapeSpec:
+        table = _table(value, "shape")
+        _check_keys(table, "shape", SHAPE_KEYS)
+        method = _string(table.get("method", "target"), "shape.method")
+        if method not in SHAPE_METHODS:
+            raise CaseError("shape.method", f'unknown form-finding method "{method}" '
+                            f'(known: {", ".join(SHAPE_METHODS)})')
+        permanent = ()
+        if "permanent" in table:
+            raw = table["permanent"]
+            permanent = () if raw == [] else _names_list(raw, "shape.permanent", "load case names")
+            for k, case in enumerate(permanent):
+                if case not in cases:
+                    raise CaseError(f"shape.permanent[{k}]", f'no load defines the load case "{case}" '
+                                    f'(known: {", ".join(sorted(cases)) or "none"})' + _suggest(case, cases))
+        own = {"target": ("targets", "adjust"), "force-density": ("force_density",)}
+        for other, keys in own.items():
+            for name in keys:
+                if other != method and name in table:
+                    raise CaseError(f"shape.{name}", f'"{name}" belongs to method "{other}", '
+                                    f'but method is "{method}"')
+        for name in own[method]:
+            if name not in table:
+                raise CaseError(f"shape.{name}", f'missing: method "{method}" needs {" and ".join(own[method])}')
+        targets, adjust, force_density = {}, [], {}
+        if method == "target":
+            for name, coords in _table(table["targets"], "shape.targets", "a table node = { x, y, z }").items():
+                key = key_join("shape.targets", name)
+                self.node(name, key)
+                coords = _table(coords, key, "a table of x, y and/or z, e.g. { z = 0.0 }")
+                if not coords:
+                    raise CaseError(key, "expected at least one of x, y, z")
+                _check_keys(coords, key, ("x", "y", "z"))
+                targets[name] = {axis: self.quantity(v, "length", key_join(key, axis)) for axis, v in coords.items()}
+            if not targets:
+                raise CaseError("shape.targets", "expected at least one target node")
+            groups = table["adjust"]
+            if isinstance(groups, Mapping):
+                groups = [groups]
+            if not isinstance(groups, list) or not groups:
+                raise CaseError("shape.adjust", "expected one or more [[shape.adjust]] tables, "
+                                f"found {describe_value(groups)}")
+            for k, group in enumerate(groups):
+                key = f"shape.adjust[{k}]"
+                group = _table(group, key)
+                _check_keys(group, key, ADJUST_KEYS)
+                members = self.patterns(_require(group, "members", key, 'member ids or patterns, e.g. members = "H*"'),
+                                        f"{key}.members")
+                together = _bool(group["together"], f"{key}.together") if "together" in group else False
+                adjust.append(AdjustGroup(members=members, together=together, key=key))
+        else:
+            table_fd = _table(table["force_density"], "shape.force_density", 'a table pattern = force density')
+            if not table_fd:
+                raise CaseError("shape.force_density", "expected at least one pattern = force density")
+            for pattern, density in table_fd.items():
+                key = key_join("shape.force_density", pattern)
+                self.patterns(pattern, key)
+                q = self.quantity(density, "force_per_length", key)
+                if q == 0.0:
+                    raise CaseError(key, "a force density of 0 removes the members from the net; expected a non-zero value")
+                force_density[pattern] = q
+        return ShapeSpec(
+            method=method, permanent=permanent,
+            tolerance=self.optional(table, "tolerance", "length", "shape", "positive", default=ShapeSpec.tolerance),
+            targets=targets, adjust=tuple(adjust), force_density=force_density,
+            fabrication_temperature=self.optional(table, "fabrication_temperature", "temperature_difference", "shape"),
+            max_iterations=(_integer(table["max_iterations"], "shape.max_iterations", 1)
+                            if "max_iterations" in table else 30),
+        )
+
+    def analysis(self, value) -> AnalysisSettings:
+        table = _table(value, "analysis")
+        _check_keys(table, "analysis", ANALYSIS_KEYS)
+        defaults = AnalysisSettings()
+        solver = _string(table.get("solver", defaults.solver), "analysis.solver")
+        if solver not in SOLVERS:
+            raise CaseError("analysis.solver", f'unknown linear solver "{solver}" (known: {", ".join(SOLVERS)})')
+        return AnalysisSettings(
+            increments=_integer(table.get("increments", defaults.increments), "analysis.increments", 1),
+            tolerance=self.optional(table, "tolerance", "dimensionless", "analysis", "positive",
+                                    default=defaults.tolerance),
+            max_iterations=_integer(table.get("max_iterations", defaults.max_iterations),
+                                    "analysis.max_iterations", 1),
+            solver=solver,
+            max_cuts=_integer(table.get("max_cuts", defaults.max_cuts), "analysis.max_cuts", 0),
+        )
+
+
+# ---------------------------------------------------------------------------
+# helpers of the reader
+# ---------------------------------------------------------------------------
+
+def _member_type(value, key) -> str:
+    mtype = _string(value, key, f'a member type ({" | ".join(MEMBER_TYPES)})')
+    if mtype not in MEMBER_TYPES:
+        raise CaseError(key, f'unknown member type "{mtype}" (known: {", ".join(MEMBER_TYPES)})'
+                        + _suggest(mtype, MEMBER_TYPES))
+    return mtype
+
+
+def _section_name(value, key, sections) -> str:
+    name = _name(value, key, "a section name")
+    if name not in sections:
+        raise CaseError(key, f'no section named "{name}" (known: {", ".join(sections) or "none"})'
+                        + _suggest(name, sections))
+    return name
+
+
+def _type_specific(entry, key, mtype) -> None:
+    """Keys that only some member types take."""
+    if "tension_only" in entry and mtype != "bar":
+        raise CaseError(f"{key}.tension_only", f'tension_only applies to bar members only, this is a {mtype} '
+                        "(a cable never takes compression anyway)" if mtype == "cable" else
+                        f"tension_only applies to bar members only, this is a {mtype}")
+    if "up" in entry and mtype != "beam":
+        raise CaseError(f"{key}.up", f"up applies to beam members only, this is a {mtype}")
+    for name in ("length0", "pretension"):
+        if name in entry and mtype == "beam":
+            raise CaseError(f"{key}.{name}", f"{name} applies to cable and bar members, this is a beam")
+    if "length0" in entry and "pretension" in entry:
+        raise CaseError(f"{key}.pretension", "give either length0 or pretension, not both")
+
+
+def _string_array(value, key, length: int | None = None) -> list[str]:
+    if not isinstance(value, list):
+        raise CaseError(key, f"expected an array of strings, found {describe_value(value)}")
+    if length is not None and len(value) != length:
+        raise CaseError(key, f"expected {length} entries (as many as ids), found {len(value)}")
+    if not set(map(type, value)) <= {str}:
+        k = next(k for k, v in enumerate(value) if type(v) is not str)
+        raise CaseError(f"{key}[{k}]", f"expected a string, found {describe_value(value[k])}")
+    return value
+
+
+def _number_array(value, key, length: int, against: str) -> np.ndarray:
+    """Bare numbers of a compact table as floats (no unit strings: speed)."""
+    if not isinstance(value, list):
+        raise CaseError(key, f"expected an array of numbers, found {describe_value(value)}")
+    if len(value) != length:
+        raise CaseError(key, f"expected {length} numbers (as many as {against}), found {len(value)}")
+    if not set(map(type, value)) <= {int, float}:
+        k = next(k for k, v in enumerate(value) if type(v) not in (int, float))
+        raise CaseError(f"{key}[{k}]", f"expected a number (compact tables take bare numbers in the "
+                        f"file's units), found {describe_value(value[k])}")
+    try:
+        array = np.array(value, dtype=float)
+    except OverflowError:
+        array = np.array([float(v) if abs(v) < 1e308 else math.inf for v in value])
+    bad = np.flatnonzero(~np.isfinite(array))
+    if bad.size:
+        k = int(bad[0])
+        raise CaseError(f"{key}[{k}]", f"expected a finite number, found {value[k]!r}")
+    return array
+
+
+def _unique(ids: list[str], key: str, what: str, earlier: Mapping, earlier_keys: Mapping) -> None:
+    """Ids of a compact table must be unique and new."""
+    if len(set(ids)) != len(ids) or not earlier.keys().isdisjoint(ids):
+        seen = {}
+        for k, name in enumerate(ids):
+            if name in earlier:
+                raise CaseError(f"{key}[{k}]", f'duplicate {what} "{name}" (first at {earlier_keys[name]})')
+            if name in seen:
+                raise CaseError(f"{key}[{k}]", f'duplicate {what} "{name}" (first at {key}[{seen[name]}])')
+            seen[name] = k
+    for k, name in enumerate(ids):
+        if not name.strip():
+            raise CaseError(f"{key}[{k}]", f"expected a {what}, found an empty string")
+
+
+def _interior_positions(members, owners, nodes) -> dict[str, tuple[float, float, float]]:
+    """Positions of interior nodes; ends may be interior nodes of other members.
+
+    ``members`` are :class:`Member` objects or reader records (dicts);
+    ``owners`` maps interior id -> (member index, k).
+    """
+    def field(m, name):
+        return m[name] if isinstance(m, dict) else getattr(m, name)
+
+    done: dict[int, tuple] = {}        # member index -> (first end, last end) positions
+    positions: dict[str, tuple[float, float, float]] = {}
+
+    def end_position(name):
+        if name in nodes:
+            return np.asarray(nodes[name], dtype=float)
+        if name in positions:
+            return np.asarray(positions[name])
+        raise KeyError(name)
+
+    for start in range(len(members)):
+        if field(members[start], "divide") < 2 or start in done:
+            continue
+        stack, active = [start], {start}
+        while stack:
+            index = stack[-1]
+            member = members[index]
+            waiting = None
+            for name in field(member, "nodes"):
+                if name not in nodes and name not in positions:
+                    if name not in owners:
+                        key = field(member, "key") or f"members[{index}]"
+                        raise CaseError(f"{key}.nodes", f'no node named "{name}"')
+                    waiting = owners[name][0]
+                    break
+            if waiting is None:
+                a, b = (end_position(n) for n in field(member, "nodes"))
+                n = field(member, "divide")
+                given = field(member, "interior")
+                for k, nid in enumerate(interior_node_ids(field(member, "id"), n), start=1):
+                    positions[nid] = tuple(given[k - 1]) if given is not None else tuple((a + (b - a) * k / n).tolist())
+                done[index] = True
+                stack.pop()
+                active.discard(index)
+            elif waiting in active:
+                loop = " -> ".join(f'"{field(members[i], "id")}"' for i in stack + [waiting])
+                key = field(member, "key") or f"members[{index}]"
+                raise CaseError(f"{key}.nodes", f"divided members end on each other's interior nodes in a loop "
+                                f"({loop}); their positions cannot be found")
+            else:
+                stack.append(waiting)
+                active.add(waiting)
+    return positions

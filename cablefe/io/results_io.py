@@ -1,0 +1,129 @@
+"""Writers for results: ``results.json``, one ``.vtu`` per result and a
+``.pvd`` collection.  Every file is written atomically."""
+from __future__ import annotations
+
+import json
+import re
+from pathlib import Path
+from xml.sax.saxutils import quoteattr
+
+import meshio
+import numpy as np
+
+from ..elements import catenary
+from ..results import Results, element_end_tensions
+from .atomic import atomic_path, write_text
+
+CURVE_POINTS = 9   # points drawn along each catenary element (ends included)
+
+
+def write_json(results: Results, path, extra: dict | None = None) -> Path:
+    data = results.as_dict()
+    if extra:
+        data.update(extra)
+    write_text(path, json.dumps(data, indent=1, allow_nan=True))
+    return Path(path)
+
+
+def safe_name(name: str) -> str:
+    """A file-name-safe form of a result name."""
+    return re.sub(r"[^A-Za-z0-9_.+-]+", "_", name) or "result"
+
+
+def result_mesh(results: Results, name: str, utilization: dict | None = None) -> meshio.Mesh:
+    """The deformed structure of one result as a meshio line mesh.
+
+    Cables are drawn as polylines through points of their exact shape.
+    Cell data: ``tension`` (force units), ``member`` (index), ``slack``; beams
+    add ``moment_y`` and ``moment_z`` (mean of the end values); with
+    ``utilization`` (member id -> value) also ``utilization``.
+    """
+    m = results.model
+    res = results[name]
+    u = m.spec.units
+    L, F = u.length_scale, u.force_scale
+    pos = res.state.positions
+    disp = pos - m.coordinates
+    points = [pos / L]
+    pdisp = [disp / L]
+    cells, tension, member, slack, my, mz = [], [], [], [], [], []
+    per = element_end_tensions(m, res.responses)
+    next_point = len(pos)
+    loads = m.combined_loads(res.factors)
+    lam = res.outcome.load_factor
+    for f, t in m.families.items():
+        if not len(t):
+            continue
+        ends, _, _, eslack = per[f]
+        if f == "cable":
+            r = res.responses[f]
+            p = t.props
+            L0 = p["unstressed_length"] * (1.0 + lam * loads.strain[f])
+            xi, xj = pos[t.nodes[:, 0]], pos[t.nodes[:, 1]]
+            curve = catenary.shape_points(xi, xj, L0, p["EA"], lam * loads.weight[f], r.H, r.V, CURVE_POINTS)
+            inner = curve[:, 1:-1]                                   # (n, c-2, 3)
+            n, c = len(t), CURVE_POINTS
+            s = np.linspace(0.0, 1.0, c)[1:-1]
+            di, dj = disp[t.nodes[:, 0]], disp[t.nodes[:, 1]]
+            idisp = di[:, None] * (1 - s)[None, :, None] + dj[:, None] * s[None, :, None]
+            ids = next_point + np.arange(n * (c - 2)).reshape(n, c - 2)
+            next_point += n * (c - 2)
+            points.append(inner.reshape(-1, 3) / L)
+            pdisp.append(idisp.reshape(-1, 3) / L)
+            chain = np.concatenate([t.nodes[:, :1], ids, t.nodes[:, 1:]], axis=1)   # (n, c)
+            seg = np.stack([chain[:, :-1], chain[:, 1:]], axis=2).reshape(-1, 2)
+            cells.append(seg)
+            # tension along each segment: linear between the element's end values
+            mid = (np.arange(c - 1) + 0.5) / (c - 1)
+            tens = ends[:, :1] * (1 - mid) + ends[:, 1:] * mid
+            tension.append(tens.ravel() / F)
+            member.append(np.repeat(t.member, c - 1))
+            slack.append(np.repeat(eslack, c - 1))
+            my.append(np.zeros(n * (c - 1)))
+            mz.append(np.zeros(n * (c - 1)))
+        else:
+            cells.append(t.nodes)
+            tension.append(ends.mean(axis=1) / F)
+            member.append(t.member)
+            slack.append(eslack)
+            if f == "beam":
+                le = res.responses[f].local_end_forces
+                my.append(0.5 * (le[:, 4] - le[:, 10]) / (F * L))
+                mz.append(0.5 * (le[:, 5] - le[:, 11]) / (F * L))
+            else:
+                my.append(np.zeros(len(t)))
+                mz.append(np.zeros(len(t)))
+    lines = np.concatenate(cells) if cells else np.zeros((0, 2), dtype=np.int64)
+    cell_data = {
+        "tension": [np.concatenate(tension)],
+        "member": [np.concatenate(member).astype(np.int32)],
+        "slack": [np.concatenate(slack).astype(np.int8)],
+    }
+    if "beam" in m.families and len(m.families["beam"]):
+        cell_data["moment_y"] = [np.concatenate(my)]
+        cell_data["moment_z"] = [np.concatenate(mz)]
+    if utilization:
+        per_member = np.array([utilization.get(mm.id, np.nan) for mm in m.members])
+        cell_data["utilization"] = [per_member[cell_data["member"][0]]]
+    return meshio.Mesh(np.concatenate(points), [("line", lines.astype(np.int64))],
+                       point_data={"displacement": np.concatenate(pdisp)}, cell_data=cell_data)
+
+
+def write_meshes(results: Results, folder, utilization: dict | None = None) -> list[Path]:
+    """One ``<name>.vtu`` per result and ``results.pvd`` listing them."""
+    folder = Path(folder)
+    written = []
+    entries = []
+    for step, name in enumerate(results.names):
+        path = folder / f"{safe_name(name)}.vtu"
+        mesh = result_mesh(results, name, utilization.get(name) if utilization else None)
+        with atomic_path(path) as tmp:
+            meshio.write(tmp, mesh, file_format="vtu")
+        written.append(path)
+        entries.append(f'    <DataSet timestep="{step}" part="0" name={quoteattr(name)} '
+                       f'file={quoteattr(path.name)}/>')
+    pvd = ('<?xml version="1.0"?>\n<VTKFile type="Collection" version="0.1">\n  <Collection>\n'
+           + "\n".join(entries) + "\n  </Collection>\n</VTKFile>\n")
+    write_text(folder / "results.pvd", pvd)
+    written.append(folder / "results.pvd")
+    return written

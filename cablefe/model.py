@@ -1,0 +1,552 @@
+"""The analysis model: a case turned into plain arrays (SI units).
+
+Built once from a :class:`cablefe.spec.CaseSpec`; immutable afterwards.  It
+holds the node coordinates, the DOF numbering, one element table per family
+and the load vectors of every load case.  Nothing here knows TOML or units
+text.
+"""
+from __future__ import annotations
+
+import fnmatch
+import logging
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Mapping
+
+import numpy as np
+
+from .errors import CaseError
+from .spec import (CaseSpec, MemberLoad, NodalLoad, PatchLoad, PrescribedDisplacement,
+                   SelfWeight, TemperatureLoad, DIRECTIONS)
+
+log = logging.getLogger(__name__)
+
+FAMILIES = ("bar", "cable", "beam")
+
+
+@dataclass(frozen=True)
+class ElementTable:
+    """All elements of one family.
+
+    Attributes
+    ----------
+    family : "bar" | "cable" | "beam"
+    nodes : (n, 2) int, node indices of the element ends
+    member : (n,) int, index of the member the element belongs to
+    dofs : (n, k) int, global DOF numbers (k = 6 for bar/cable, 12 for beam)
+    props : mapping of name -> (n, ...) arrays.  bar/cable: ``EA`` (N),
+        ``unstressed_length`` (m), ``weight`` (N/m of unstressed length),
+        ``alpha`` (1/K), ``tension_only`` (bool), ``breaking_load`` (N, nan if
+        unknown).  beam additionally ``frame0`` (n, 3, 3), ``E``, ``G``, ``A``,
+        ``Iy``, ``Iz``, ``J``.
+    """
+
+    family: str
+    nodes: np.ndarray
+    member: np.ndarray
+    dofs: np.ndarray
+    props: Mapping[str, np.ndarray]
+
+    def __len__(self) -> int:
+        return len(self.nodes)
+
+
+@dataclass(frozen=True)
+class MemberInfo:
+    """A member of the case: one or more elements of a family in a row."""
+
+    id: str
+    type: str
+    section: str
+    family: str
+    first: int          # first element index in the family table
+    count: int          # number of elements (``divide``)
+    node_ids: tuple[str, ...]   # end node, interior nodes, end node
+    key: str = ""
+
+    @property
+    def elements(self) -> slice:
+        return slice(self.first, self.first + self.count)
+
+
+@dataclass(frozen=True)
+class LoadVectors:
+    """The loads of one load case (or a factored sum of them), SI units.
+
+    Attributes
+    ----------
+    nodal : (ndof,) forces (N) and moments (N m) at the DOFs
+    weight : family -> (n,) distributed downward load carried inside the
+        element (catenary only), N per m of unstressed length
+    strain : family -> (n,) stress-free strain (thermal), dimensionless
+    prescribed : (ndof,) prescribed displacement/rotation of restrained DOFs
+    """
+
+    nodal: np.ndarray
+    weight: Mapping[str, np.ndarray]
+    strain: Mapping[str, np.ndarray]
+    prescribed: np.ndarray
+
+    def scaled(self, factor: float) -> "LoadVectors":
+        return LoadVectors(self.nodal * factor,
+                           {k: v * factor for k, v in self.weight.items()},
+                           {k: v * factor for k, v in self.strain.items()},
+                           self.prescribed * factor)
+
+    def __add__(self, other: "LoadVectors") -> "LoadVectors":
+        return LoadVectors(self.nodal + other.nodal,
+                           {k: self.weight[k] + other.weight[k] for k in self.weight},
+                           {k: self.strain[k] + other.strain[k] for k in self.strain},
+                           self.prescribed + other.prescribed)
+
+
+@dataclass(frozen=True)
+class Model:
+    """Arrays describing a structure and its loads (SI units).
+
+    ``dof[n, d]`` is the global number of direction d (x y z rx ry rz) of
+    node n, or -1 when the node has no such DOF (rotations exist only at
+    nodes touched by beams).
+    """
+
+    spec: CaseSpec
+    node_ids: tuple[str, ...]
+    node_index: Mapping[str, int]
+    coordinates: np.ndarray          # (nn, 3) m
+    dof: np.ndarray                  # (nn, 6) int
+    restrained: np.ndarray           # (ndof,) bool: supported or inactive
+    supported: np.ndarray            # (ndof,) bool: restrained by a support
+    families: Mapping[str, ElementTable]
+    members: tuple[MemberInfo, ...]
+    member_index: Mapping[str, int]
+    load_cases: Mapping[str, LoadVectors]
+    combinations: tuple[tuple[str, Mapping[str, float]], ...] = field(default=())
+
+    @property
+    def ndof(self) -> int:
+        return int(self.dof.max()) + 1 if self.dof.size else 0
+
+    @property
+    def has_rotations(self) -> bool:
+        return bool((self.dof[:, 3:] >= 0).any())
+
+    @property
+    def free(self) -> np.ndarray:
+        """Global numbers of the unrestrained DOFs."""
+        return np.flatnonzero(~self.restrained)
+
+    def describe_dof(self, g: int) -> tuple[str, str]:
+        """(node id, direction) of global DOF number g."""
+        n, d = np.argwhere(self.dof == g)[0]
+        return self.node_ids[n], DIRECTIONS[d]
+
+    def results_to_run(self) -> tuple[tuple[str, Mapping[str, float]], ...]:
+        """Combinations, or every load case alone when there are none."""
+        if self.combinations:
+            return self.combinations
+        return tuple((name, MappingProxyType({name: 1.0})) for name in self.load_cases)
+
+    def combined_loads(self, factors: Mapping[str, float]) -> LoadVectors:
+        total = self.zero_loads()
+        for case, factor in factors.items():
+            total = total + self.load_cases[case].scaled(float(factor))
+        return total
+
+    def zero_loads(self) -> LoadVectors:
+        return LoadVectors(np.zeros(self.ndof),
+                           {f: np.zeros(len(t)) for f, t in self.families.items()},
+                           {f: np.zeros(len(t)) for f, t in self.families.items()},
+                           np.zeros(self.ndof))
+
+    def member_ids_matching(self, patterns) -> list[int]:
+        return match_members([m.id for m in self.members], patterns)
+
+    def replace_unstressed_lengths(self, family: str, values) -> "Model":
+        """A new model whose ``family`` elements have the given L0 (m)."""
+        from dataclasses import replace
+        table = self.families[family]
+        props = dict(table.props)
+        props["unstressed_length"] = np.asarray(values, dtype=float).copy()
+        fams = dict(self.families)
+        fams[family] = replace(table, props=MappingProxyType(props))
+        return replace(self, families=MappingProxyType(fams))
+
+    def replace_coordinates(self, coordinates) -> "Model":
+        """A new model with other node coordinates (m); element data kept."""
+        from dataclasses import replace
+        return replace(self, coordinates=np.asarray(coordinates, dtype=float).copy())
+
+
+def match_members(ids, patterns) -> list[int]:
+    """Indices of ids matching any of the shell-style patterns, in id order."""
+    if isinstance(patterns, str):
+        patterns = (patterns,)
+    out = []
+    for k, mid in enumerate(ids):
+        if any(p == mid or fnmatch.fnmatchcase(mid, p) for p in patterns):
+            out.append(k)
+    return out
+
+
+def _section_data(spec: CaseSpec, member, key):
+    try:
+        sec = spec.sections[member.section]
+    except KeyError:
+        raise CaseError(f"{key}.section", f'no section named "{member.section}" '
+                        f'(known: {", ".join(spec.sections)})') from None
+    mat = spec.materials[sec.material]
+    weight = sec.weight if sec.weight is not None else sec.area * mat.unit_weight
+    return sec, mat, weight
+
+
+def build_model(spec: CaseSpec) -> Model:
+    """Turn a validated case into arrays.
+
+    Raises
+    ------
+    CaseError
+        For problems only visible with the geometry (zero-length members,
+        beam ``up`` parallel to the member, loads on missing paths).
+    """
+    node_ids = list(spec.nodes)
+    coords = [tuple(spec.nodes[n]) for n in node_ids]
+    index = {n: k for k, n in enumerate(node_ids)}
+
+    # -- members and their elements -----------------------------------------
+    per_family: dict[str, dict[str, list]] = {f: {"nodes": [], "member": [], "L0": [], "EA": [],
+                                                  "weight": [], "alpha": [], "tension_only": [],
+                                                  "breaking_load": [], "E": [], "G": [], "A": [],
+                                                  "Iy": [], "Iz": [], "J": [], "up": []}
+                                              for f in FAMILIES}
+    members = []
+    for m_idx, mem in enumerate(spec.members):
+        key = mem.key or f"members[{m_idx}]"
+        sec, mat, weight = _section_data(spec, mem, key)
+        a, b = mem.nodes
+        for end, name in zip(("nodes[0]", "nodes[1]"), (a, b)):
+            if name not in index:
+                raise CaseError(f"{key}.nodes", f'no node named "{name}"')
+        xa, xb = np.array(coords[index[a]]), np.array(coords[index[b]])
+        chord = float(np.linalg.norm(xb - xa))
+        if chord <= 0.0:
+            raise CaseError(f"{key}.nodes", f'zero length: nodes "{a}" and "{b}" coincide')
+        n = int(mem.divide)
+        interior = mem.interior
+        chain = [index[a]]
+        sag = _starting_sag(mem, chord, xa, xb)
+        for k in range(1, n):
+            nid = f"{mem.id}.{k}"
+            if nid in index:
+                raise CaseError(f"{key}.divide", f'interior node "{nid}" clashes with a node of that name')
+            index[nid] = len(node_ids)
+            node_ids.append(nid)
+            if interior is not None:
+                coords.append(tuple(interior[k - 1]))
+            else:
+                s_k = k / n
+                coords.append(tuple(xa + (xb - xa) * s_k - np.array([0.0, 0.0, 4.0 * sag * s_k * (1 - s_k)])))
+            chain.append(index[nid])
+        chain.append(index[b])
+        family = mem.type
+        EA = mat.E * sec.area
+        if mem.type in ("cable", "bar"):
+            if mem.length0 is not None:
+                L0 = mem.length0
+            elif mem.pretension is not None:
+                L0 = chord / (1.0 + mem.pretension / EA)
+            else:
+                L0 = chord
+        else:
+            L0 = chord
+        t = per_family[family]
+        for k in range(n):
+            t["nodes"].append((chain[k], chain[k + 1]))
+            t["member"].append(m_idx)
+            t["L0"].append(L0 / n)
+            t["EA"].append(EA)
+            t["weight"].append(weight)
+            t["alpha"].append(mat.alpha)
+            t["tension_only"].append(bool(mem.tension_only) or family == "cable")
+            t["breaking_load"].append(np.nan if sec.breaking_load is None else sec.breaking_load)
+            if family == "beam":
+                for name in ("Iy", "Iz", "J"):
+                    if getattr(sec, name) is None:
+                        raise CaseError(f"sections.{sec.name}.{name}",
+                                        f"beam member {mem.id} needs {name} on its section")
+                t["E"].append(mat.E)
+                t["G"].append(mat.G)
+                t["A"].append(sec.area)
+                t["Iy"].append(sec.Iy)
+                t["Iz"].append(sec.Iz)
+                t["J"].append(sec.J)
+                t["up"].append(mem.up)
+        first = len(t["member"]) - n
+        members.append(MemberInfo(mem.id, mem.type, mem.section, family, first, n,
+                                  tuple(node_ids[c] for c in chain), key))
+
+    coordinates = np.array(coords, dtype=float).reshape(-1, 3)
+    nn = len(node_ids)
+
+    # -- DOF numbering: rotations only where beams touch ---------------------
+    rot = np.zeros(nn, dtype=bool)
+    bt = per_family["beam"]["nodes"]
+    if bt:
+        rot[np.asarray(bt).ravel()] = True
+    active = np.zeros(nn, dtype=bool)
+    for f in FAMILIES:
+        if per_family[f]["nodes"]:
+            active[np.asarray(per_family[f]["nodes"]).ravel()] = True
+    has = np.zeros((nn, 6), dtype=bool)
+    has[:, :3] = True
+    has[:, 3:] = rot[:, None]
+    dof = -np.ones((nn, 6), dtype=np.int64)
+    dof[has] = np.arange(int(has.sum()))
+    ndof = int(has.sum())
+
+    supported = np.zeros(ndof, dtype=bool)
+    for nid, mask in spec.supports.items():
+        if nid not in index:
+            raise CaseError(f"supports.{nid}", f'no node named "{nid}"')
+        g = dof[index[nid]][np.asarray(mask, dtype=bool)]
+        supported[g[g >= 0]] = True
+    restrained = supported.copy()
+    lonely = np.flatnonzero(~active)
+    if lonely.size:
+        log.warning("nodes joined to no member are held fixed: %s",
+                    ", ".join(node_ids[k] for k in lonely[:10]))
+        g = dof[lonely].ravel()
+        restrained[g[g >= 0]] = True
+
+    # -- element tables --------------------------------------------------------
+    families = {}
+    for f in FAMILIES:
+        t = per_family[f]
+        nodes = np.asarray(t["nodes"], dtype=np.int64).reshape(-1, 2)
+        k = 6 if f == "beam" else 3
+        dofs = np.concatenate([dof[nodes[:, 0], :k], dof[nodes[:, 1], :k]], axis=1) if len(nodes) \
+            else np.zeros((0, 2 * k), dtype=np.int64)
+        props = {
+            "EA": np.asarray(t["EA"], dtype=float),
+            "unstressed_length": np.asarray(t["L0"], dtype=float),
+            "weight": np.asarray(t["weight"], dtype=float),
+            "alpha": np.asarray(t["alpha"], dtype=float),
+            "tension_only": np.asarray(t["tension_only"], dtype=bool),
+            "breaking_load": np.asarray(t["breaking_load"], dtype=float),
+        }
+        if f == "beam":
+            from .elements import beam
+            for name in ("E", "G", "A", "Iy", "Iz", "J"):
+                props[name] = np.asarray(t[name], dtype=float)
+            xi, xj = coordinates[nodes[:, 0]], coordinates[nodes[:, 1]]
+            ups = t["up"]
+            up = None
+            if any(u is not None for u in ups):
+                up = np.array([u if u is not None else _default_up(a, b) for u, a, b in zip(ups, xi, xj)])
+            try:
+                props["frame0"] = beam.local_frames(xi, xj, up) if len(nodes) else np.zeros((0, 3, 3))
+            except ValueError as exc:
+                raise CaseError("members", f"beam up vector: {exc}") from None
+        families[f] = ElementTable(f, nodes, np.asarray(t["member"], dtype=np.int64), dofs,
+                                   MappingProxyType(props))
+
+    model = Model(spec=spec, node_ids=tuple(node_ids), node_index=MappingProxyType(index),
+                  coordinates=coordinates, dof=dof, restrained=restrained, supported=supported,
+                  families=MappingProxyType(families), members=tuple(members),
+                  member_index=MappingProxyType({m.id: k for k, m in enumerate(members)}),
+                  load_cases=MappingProxyType({}))
+    cases = _build_loads(spec, model)
+    combos = tuple((c.name, MappingProxyType(dict(c.factors))) for c in spec.combinations)
+    from dataclasses import replace
+    return replace(model, load_cases=MappingProxyType(cases), combinations=combos)
+
+
+def _starting_sag(mem, chord, xa, xb) -> float:
+    """Sag (m) of the parabola on which the interior nodes of a divided
+    cable or bar start when its unstressed length exceeds the chord, so that
+    the solver starts near the hanging shape instead of from a straight,
+    compressed or slack line: S ~ c (1 + 8/3 (d/c)^2) solved for d
+    (parabolic cable length, Irvine 1981, ch. 2)."""
+    if mem.type not in ("cable", "bar") or mem.length0 is None or mem.divide < 2:
+        return 0.0
+    horizontal = float(np.hypot(*(xb - xa)[:2]))
+    if mem.length0 <= chord or horizontal < 1e-6 * chord:
+        return 0.0
+    return chord * float(np.sqrt(3.0 / 8.0 * (mem.length0 / chord - 1.0)))
+
+
+def _default_up(xi, xj):
+    e = (xj - xi) / np.linalg.norm(xj - xi)
+    return np.array([1.0, 0.0, 0.0]) if abs(e[2]) > 0.999 else np.array([0.0, 0.0, 1.0])
+
+
+# -- loads ----------------------------------------------------------------------
+
+class _LoadBuilder:
+    def __init__(self, model: Model):
+        self.model = model
+        self.nodal = np.zeros(model.ndof)
+        self.weight = {f: np.zeros(len(t)) for f, t in model.families.items()}
+        self.strain = {f: np.zeros(len(t)) for f, t in model.families.items()}
+        self.prescribed = np.zeros(model.ndof)
+
+    def freeze(self) -> LoadVectors:
+        return LoadVectors(self.nodal, self.weight, self.strain, self.prescribed)
+
+    def add_point(self, node: int, force) -> None:
+        g = self.model.dof[node, :3]
+        self.nodal[g] += force
+
+    def add_element_load(self, family: str, elems: np.ndarray, per_length: np.ndarray,
+                         a: np.ndarray, b: np.ndarray) -> None:
+        """Uniform load per undeformed length on [a, b] of each element (m)."""
+        m = self.model
+        t = m.families[family]
+        nodes = t.nodes[elems]
+        xi, xj = m.coordinates[nodes[:, 0]], m.coordinates[nodes[:, 1]]
+        length = np.linalg.norm(xj - xi, axis=1)
+        p = np.broadcast_to(per_length, (len(elems), 3)).astype(float)
+        if family == "beam":
+            from .elements import beam
+            fe = beam.equivalent_nodal_loads(xi, xj, t.props["frame0"][elems], length, p, a, b)
+            np.add.at(self.nodal, t.dofs[elems], fe)
+            return
+        if family == "cable":
+            # a downward load over the whole element is carried exactly by the
+            # catenary as extra weight per unstressed length; the rest is lumped
+            full = (a <= 0.0) & (b >= length * (1 - 1e-12))
+            down = np.where(full & (p[:, 2] < 0.0), -p[:, 2], 0.0)
+            L0 = t.props["unstressed_length"][elems]
+            np.add.at(self.weight[family], elems, down * length / L0)
+            p = p.copy()
+            p[:, 2] += down
+        total = p * (b - a)[:, None]
+        centre = 0.5 * (a + b) / length
+        np.add.at(self.nodal, t.dofs[elems, :3], total * (1.0 - centre)[:, None])
+        np.add.at(self.nodal, t.dofs[elems, 3:6], total * centre[:, None])
+
+
+def _member_elements(model: Model, indices):
+    """(family, element index array) groups for member indices."""
+    groups: dict[str, list[int]] = {}
+    for k in indices:
+        mi = model.members[k]
+        groups.setdefault(mi.family, []).extend(range(mi.first, mi.first + mi.count))
+    return {f: np.asarray(v, dtype=np.int64) for f, v in groups.items()}
+
+
+def _segment_elements(model: Model, a: str, b: str):
+    """Elements from node a to node b in order: list of (family, element, reversed)."""
+    ia, ib = model.node_index[a], model.node_index[b]
+    for f, t in model.families.items():
+        hit = np.flatnonzero((t.nodes[:, 0] == ia) & (t.nodes[:, 1] == ib))
+        if hit.size:
+            return [(f, int(hit[0]), False)]
+        hit = np.flatnonzero((t.nodes[:, 0] == ib) & (t.nodes[:, 1] == ia))
+        if hit.size:
+            return [(f, int(hit[0]), True)]
+    for mi in model.members:
+        if mi.node_ids[0] == a and mi.node_ids[-1] == b:
+            return [(mi.family, e, False) for e in range(mi.first, mi.first + mi.count)]
+        if mi.node_ids[0] == b and mi.node_ids[-1] == a:
+            return [(mi.family, e, True) for e in reversed(range(mi.first, mi.first + mi.count))]
+    return None
+
+
+def _build_loads(spec: CaseSpec, model: Model) -> dict[str, LoadVectors]:
+    builders: dict[str, _LoadBuilder] = {}
+    ids = [m.id for m in model.members]
+    for k, load in enumerate(spec.loads):
+        key = load.key or f"loads[{k}]"
+        lb = builders.setdefault(load.case, _LoadBuilder(model))
+        if isinstance(load, SelfWeight):
+            for f, t in model.families.items():
+                if not len(t):
+                    continue
+                w = t.props["weight"] * load.factor
+                if f == "cable":
+                    lb.weight[f] += w
+                else:
+                    nodes = t.nodes
+                    length = np.linalg.norm(model.coordinates[nodes[:, 1]] - model.coordinates[nodes[:, 0]], axis=1)
+                    # weight per unstressed length times L0 is the element's weight
+                    W = w * t.props["unstressed_length"]
+                    lb.add_element_load(f, np.arange(len(t)), np.stack([0 * W, 0 * W, -W / length], axis=1),
+                                        np.zeros(len(t)), length)
+        elif isinstance(load, NodalLoad):
+            n = _node(model, load.node, f"{key}.node")
+            lb.add_point(n, np.asarray(load.force, dtype=float))
+            if load.moment is not None and np.any(np.asarray(load.moment) != 0):
+                g = model.dof[n, 3:]
+                if (g < 0).any():
+                    raise CaseError(f"{key}.moment", f'node "{load.node}" has no rotations '
+                                    "(only nodes joined to beams take moments)")
+                lb.nodal[g] += np.asarray(load.moment, dtype=float)
+        elif isinstance(load, MemberLoad):
+            hit = match_members(ids, load.members)
+            if not hit:
+                raise CaseError(f"{key}.members", f"no member matches {list(load.members)}")
+            for f, elems in _member_elements(model, hit).items():
+                t = model.families[f]
+                length = np.linalg.norm(model.coordinates[t.nodes[elems, 1]] - model.coordinates[t.nodes[elems, 0]], axis=1)
+                lb.add_element_load(f, elems, np.asarray(load.per_length, dtype=float),
+                                    np.zeros(len(elems)), length)
+        elif isinstance(load, PatchLoad):
+            _add_patch(model, lb, load, key)
+        elif isinstance(load, TemperatureLoad):
+            hit = match_members(ids, load.members)
+            if not hit:
+                raise CaseError(f"{key}.members", f"no member matches {list(load.members)}")
+            for f, elems in _member_elements(model, hit).items():
+                lb.strain[f][elems] += model.families[f].props["alpha"][elems] * load.delta_t
+        elif isinstance(load, PrescribedDisplacement):
+            n = _node(model, load.node, f"{key}.node")
+            vals = list(load.displacement) + list(load.rotation or (None, None, None))
+            for d, v in enumerate(vals):
+                if v is None:
+                    continue
+                g = model.dof[n, d]
+                if g < 0:
+                    if v != 0.0:
+                        raise CaseError(f"{key}", f'node "{load.node}" has no {DIRECTIONS[d]} DOF to move')
+                    continue
+                if not model.supported[g]:
+                    if v != 0.0:
+                        raise CaseError(f"{key}.displacement", f'node "{load.node}" is not restrained in '
+                                        f"{DIRECTIONS[d]}; only supported directions can be moved")
+                    continue
+                lb.prescribed[g] += v
+        else:  # pragma: no cover - the spec types are closed
+            raise CaseError(key, f"unknown load type {type(load).__name__}")
+    for c in spec.load_cases:
+        builders.setdefault(c, _LoadBuilder(model))
+    return {name: b.freeze() for name, b in builders.items()}
+
+
+def _node(model: Model, name: str, key: str) -> int:
+    try:
+        return model.node_index[name]
+    except KeyError:
+        raise CaseError(key, f'no node named "{name}"') from None
+
+
+def _add_patch(model: Model, lb: _LoadBuilder, load: PatchLoad, key: str) -> None:
+    p = np.asarray(load.per_length, dtype=float)
+    s = 0.0
+    end = np.inf if load.end is None else load.end
+    for a, b in zip(load.path[:-1], load.path[1:]):
+        for name in (a, b):
+            _node(model, name, f"{key}.path")
+        chain = _segment_elements(model, a, b)
+        if chain is None:
+            raise CaseError(f"{key}.path", f'nodes "{a}" and "{b}" are not joined by a member')
+        for f, e, rev in chain:
+            t = model.families[f]
+            xi, xj = model.coordinates[t.nodes[e]]
+            length = float(np.linalg.norm(xj - xi))
+            lo, hi = max(load.start, s), min(end, s + length)
+            if hi > lo:
+                u0, u1 = lo - s, hi - s
+                if rev:  # distances are measured from node j of this element
+                    u0, u1 = length - u1, length - u0
+                lb.add_element_load(f, np.array([e]), p, np.array([u0]), np.array([u1]))
+            s += length

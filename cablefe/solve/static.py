@@ -1,0 +1,148 @@
+"""Nonlinear static analysis of one load combination.
+
+Residual at the unknowns, for load factor λ in [0, 1]:
+
+    r(u, λ) = f_int(u; λ) - λ f_ext - (1 - λ) f_int(u0; 0)
+
+``f_int(u; λ)`` carries the element loads scaled by λ (catenary weight,
+thermal strain); the prescribed support movements are λ times their values.
+The last term removes the out-of-balance of the starting geometry together
+with the applied load, so a model whose coordinates are an equilibrium shape
+starts in equilibrium and never passes through an unloaded, slack state.
+"""
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+from typing import Mapping
+
+import numpy as np
+
+from ..assembly import Assembler, Evaluation, State, initial_state
+from ..errors import MechanismError
+from ..model import LoadVectors, Model
+from . import linear
+from .newton import NewtonSettings, PathOutcome, follow_load_path
+
+log = logging.getLogger(__name__)
+
+
+def _expm_so3(theta: np.ndarray) -> np.ndarray:
+    from ..elements.beam import expm_so3
+    return expm_so3(theta)
+
+
+class StaticProblem:
+    """Residual/tangent pair of one combination for the Newton driver."""
+
+    def __init__(self, model: Model, loads: LoadVectors, assembler: Assembler | None = None,
+                 linear_solver: str = "auto"):
+        self.model = model
+        self.loads = loads
+        self.assembler = assembler or Assembler(model)
+        self.free = self.assembler.free
+        self.solver = linear.make_linear_solver(linear_solver, symmetric=not model.has_rotations)
+        self._start = initial_state(model)
+        self._r0 = self.assembler.evaluate(self._start, loads, 0.0, want_tangent=False).internal
+        self._pres = np.flatnonzero(loads.prescribed != 0.0)
+
+    # -- the problem interface -------------------------------------------------
+    def initial_state(self) -> State:
+        return self._start
+
+    def impose(self, state: State, lam_from: float, lam_to: float) -> State:
+        if not self._pres.size:
+            return state
+        pos = state.positions.copy()
+        rot = None if state.rotations is None else state.rotations.copy()
+        dof = self.model.dof
+        for g in self._pres:
+            n, d = np.argwhere(dof == g)[0]
+            if d < 3:
+                pos[n, d] = self.model.coordinates[n, d] + lam_to * self.loads.prescribed[g]
+            else:
+                theta = np.zeros(3)
+                theta[d - 3] = (lam_to - lam_from) * self.loads.prescribed[g]
+                rot[n] = _expm_so3(theta[None])[0] @ rot[n]
+        return State(pos, rot)
+
+    def out_of_balance(self, ev: Evaluation, lam: float) -> np.ndarray:
+        """f_int - λ f_ext - (1 - λ) f_int(u0; 0) over all DOFs."""
+        return ev.internal - lam * self.loads.nodal - (1.0 - lam) * self._r0
+
+    def evaluate(self, state: State, lam: float, want_tangent: bool = True):
+        ev = self.assembler.evaluate(state, self.loads, lam, want_tangent)
+        r = self.out_of_balance(ev, lam)[self.free]
+        applied = lam * self.loads.nodal + (1.0 - lam) * self._r0
+        ref = max(float(np.linalg.norm(applied[self.free])), float(np.linalg.norm(ev.magnitude[self.free])),
+                  np.finfo(float).tiny)
+        return r, ref, ev.tangent
+
+    def advance(self, state: State, du: np.ndarray) -> State:
+        dof = self.model.dof
+        g = np.zeros(self.model.ndof)
+        g[self.free] = du
+        full = np.where(dof >= 0, g[np.maximum(dof, 0)], 0.0)   # (nn, 6)
+        pos = state.positions + full[:, :3]
+        rot = state.rotations
+        if rot is not None:
+            rot = np.einsum("nij,njk->nik", _expm_so3(full[:, 3:]), rot)
+        return State(pos, rot)
+
+    def commit(self, state: State) -> None:
+        self.assembler.remember(self.assembler.element_responses(state, self.loads, 1.0, False))
+
+    def solve_linear(self, K, r):
+        if K.shape[0] == 0:
+            return np.zeros(0)
+        try:
+            return self.solver.factorize(K).solve(r)
+        except linear.SingularMatrixError as exc:
+            eqs = getattr(exc, "equations", None)
+            if eqs is None or len(eqs) == 0:
+                eqs = linear.find_unrestrained(K)
+            raise MechanismError([self.model.describe_dof(int(self.free[e])) for e in eqs]) from None
+
+
+@dataclass(frozen=True)
+class StaticResult:
+    """A solved combination (SI units).
+
+    Attributes
+    ----------
+    name : combination or load case name
+    outcome : PathOutcome of the Newton driver
+    state : final (last converged) State
+    reactions : (ndof,) support forces on the structure at restrained DOFs
+    responses : family -> element response at the final state
+    """
+
+    name: str
+    factors: Mapping[str, float]
+    outcome: PathOutcome
+    state: State
+    reactions: np.ndarray
+    responses: Mapping[str, object]
+
+    @property
+    def converged(self) -> bool:
+        return self.outcome.converged
+
+
+def solve_combination(model: Model, name: str, factors: Mapping[str, float],
+                      settings: NewtonSettings | None = None, linear_solver: str | None = None,
+                      progress=None) -> StaticResult:
+    """Solve one combination of load cases nonlinearly from the model's geometry."""
+    a = model.spec.analysis
+    settings = settings or NewtonSettings(a.increments, a.tolerance, a.max_iterations, a.max_cuts)
+    loads = model.combined_loads(factors)
+    problem = StaticProblem(model, loads, linear_solver=linear_solver or a.solver)
+    outcome = follow_load_path(problem, settings, progress)
+    lam = outcome.load_factor
+    ev = problem.assembler.evaluate(outcome.state, loads, lam, want_tangent=False)
+    reactions = problem.out_of_balance(ev, lam)
+    reactions[problem.free] = 0.0
+    if not model.supported.all():
+        reactions[~model.supported] = 0.0
+    log.info("%s: %s", name, outcome.message)
+    return StaticResult(name, dict(factors), outcome, outcome.state, reactions, ev.responses)

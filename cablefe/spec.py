@@ -1,0 +1,211 @@
+"""A case as validated plain data, in SI units.
+
+This is what :mod:`cablefe.io.case` produces from a TOML file, and what a
+notebook user can build directly in Python.  Ids stay strings here; the
+:class:`cablefe.model.Model` turns them into arrays.  Units: N, m, Pa, N/m,
+N/m^3, 1/K, K.
+
+Each item keeps ``key``, its key path in the case file (``"members[3]"``), so
+that errors found later (zero-length member, path not joined by members) can
+still point at the line the engineer must fix.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+import numpy as np
+
+MEMBER_TYPES = ("cable", "bar", "beam")
+DIRECTIONS = ("x", "y", "z", "rx", "ry", "rz")
+
+
+@dataclass(frozen=True)
+class UnitSystem:
+    """Units of bare numbers in a case file and in its results.
+
+    ``length_scale`` is metres per length unit, ``force_scale`` newtons per
+    force unit.
+    """
+
+    length: str = "m"
+    force: str = "kN"
+    length_scale: float = 1.0
+    force_scale: float = 1000.0
+
+
+@dataclass(frozen=True)
+class Material:
+    name: str
+    E: float                    # Pa
+    G: float                    # Pa (default E / 2.6)
+    unit_weight: float = 0.0    # N/m^3
+    alpha: float = 0.0          # 1/K
+
+
+@dataclass(frozen=True)
+class Section:
+    name: str
+    material: str
+    area: float                       # m^2
+    weight: float | None = None       # N/m; None: area * unit_weight
+    breaking_load: float | None = None  # N
+    diameter: float | None = None     # m
+    Iy: float | None = None           # m^4, bending about local y
+    Iz: float | None = None           # m^4, bending about local z
+    J: float | None = None            # m^4, torsion constant
+
+
+@dataclass(frozen=True)
+class Member:
+    id: str
+    type: str                         # "cable" | "bar" | "beam"
+    nodes: tuple[str, str]
+    section: str
+    key: str = ""
+    length0: float | None = None      # m, unstressed length of the whole member
+    pretension: float | None = None   # N, alternative to length0
+    tension_only: bool = False
+    divide: int = 1
+    up: tuple[float, float, float] | None = None
+    # extension: coordinates (m) of the interior nodes of a divided member, as
+    # written by form-finding so that a shaped case reloads in its shape
+    interior: tuple[tuple[float, float, float], ...] | None = None
+
+
+@dataclass(frozen=True)
+class SelfWeight:
+    case: str
+    key: str = ""
+    factor: float = 1.0
+
+
+@dataclass(frozen=True)
+class NodalLoad:
+    case: str
+    node: str
+    force: tuple[float, float, float] = (0.0, 0.0, 0.0)          # N
+    moment: tuple[float, float, float] | None = None             # N m
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class MemberLoad:
+    """Uniform load per unit undeformed length on matching members (N/m)."""
+
+    case: str
+    members: tuple[str, ...]          # ids or shell-style patterns
+    per_length: tuple[float, float, float]
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class PatchLoad:
+    """Uniform load per length on part of a path of consecutive nodes."""
+
+    case: str
+    path: tuple[str, ...]
+    per_length: tuple[float, float, float]   # N/m
+    start: float = 0.0                       # m along the undeformed path
+    end: float | None = None                 # m; None: end of the path
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class TemperatureLoad:
+    case: str
+    members: tuple[str, ...]
+    delta_t: float                    # K
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class PrescribedDisplacement:
+    case: str
+    node: str
+    displacement: tuple[float | None, float | None, float | None]          # m
+    rotation: tuple[float | None, float | None, float | None] | None = None  # rad
+    key: str = ""
+
+
+Load = SelfWeight | NodalLoad | MemberLoad | PatchLoad | TemperatureLoad | PrescribedDisplacement
+
+
+@dataclass(frozen=True)
+class Combination:
+    name: str
+    factors: Mapping[str, float]
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class AdjustGroup:
+    members: tuple[str, ...]          # patterns
+    together: bool = False
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class ShapeSpec:
+    method: str = "target"            # "target" | "force-density"
+    permanent: tuple[str, ...] = ()
+    tolerance: float = 1e-4           # m
+    targets: Mapping[str, Mapping[str, float]] = field(default_factory=dict)   # node -> {x|y|z: m}
+    adjust: tuple[AdjustGroup, ...] = ()
+    force_density: Mapping[str, float] = field(default_factory=dict)          # pattern -> N/m
+    fabrication_temperature: float | None = None   # K difference from the analysis state
+    max_iterations: int = 30
+    key: str = "shape"
+
+
+@dataclass(frozen=True)
+class AnalysisSettings:
+    increments: int = 10
+    tolerance: float = 1e-8
+    max_iterations: int = 30
+    solver: str = "auto"              # linear solver backend
+    max_cuts: int = 12                # extension: how often an increment may be halved
+
+
+@dataclass(frozen=True)
+class CaseSpec:
+    """A whole validated case in SI units."""
+
+    title: str = ""
+    units: UnitSystem = UnitSystem()
+    materials: Mapping[str, Material] = field(default_factory=dict)
+    sections: Mapping[str, Section] = field(default_factory=dict)
+    nodes: Mapping[str, tuple[float, float, float]] = field(default_factory=dict)   # m
+    supports: Mapping[str, tuple[bool, bool, bool, bool, bool, bool]] = field(default_factory=dict)
+    members: tuple[Member, ...] = ()
+    loads: tuple[Load, ...] = ()
+    combinations: tuple[Combination, ...] = ()
+    shape: ShapeSpec | None = None
+    analysis: AnalysisSettings = AnalysisSettings()
+    source: str | None = None          # path of the file read, if any
+    raw: Mapping[str, Any] | None = None  # the parsed TOML, kept for faithful rewriting
+    extra: Mapping[str, Any] = field(default_factory=dict)  # tables for later studies
+
+    @property
+    def load_cases(self) -> tuple[str, ...]:
+        """Names of the load cases in order of first appearance."""
+        seen: dict[str, None] = {}
+        for load in self.loads:
+            seen.setdefault(load.case, None)
+        return tuple(seen)
+
+
+def support_mask(code: str) -> tuple[bool, ...] | None:
+    """Restraint mask (x, y, z, rx, ry, rz) for a support code, None if invalid."""
+    words = code.split()
+    if words == ["all"]:
+        return (True,) * 6
+    if words == ["pin"]:
+        return (True, True, True, False, False, False)
+    if not words or any(w not in DIRECTIONS for w in words) or len(set(words)) != len(words):
+        return None
+    return tuple(d in words for d in DIRECTIONS)
+
+
+def as_vector(value, n: int = 3) -> np.ndarray:
+    return np.asarray(value, dtype=float).reshape(n)

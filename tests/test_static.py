@@ -1,0 +1,191 @@
+"""Whole-model nonlinear statics against closed-form and published results."""
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+from numpy.testing import assert_allclose
+from scipy.optimize import brentq
+
+import cablefe
+from cablefe.spec import (Combination, Material, Member, MemberLoad, NodalLoad, PrescribedDisplacement,
+                          Section, SelfWeight, TemperatureLoad)
+from conftest import make_spec
+
+EA = 2.0e11 * 1.0e-3
+
+
+def test_prestressed_string_with_central_point_load():
+    # source: statics of a two-bar string (shared/validation.md, "Prestressed string"):
+    # P = 2 N sin(theta), N = EA (L - L0)/L0, L = a / cos(theta).  Exact.
+    a, L0, P = 5.0, 4.99, 20e3
+    spec = make_spec(
+        nodes={"A": (-a, 0, 0), "C": (0, 0, 0), "B": (a, 0, 0)},
+        members=[Member("L", "bar", ("A", "C"), "s", length0=L0),
+                 Member("R", "bar", ("C", "B"), "s", length0=L0)],
+        supports={"A": (True,) * 6, "B": (True,) * 6, "C": (False, True, False, False, False, False)},
+        loads=[NodalLoad("point", "C", (0.0, 0.0, -P))])
+    res = cablefe.solve(cablefe.build_model(spec))
+    assert res.all_converged
+
+    def balance(u):
+        L = np.hypot(a, u)
+        return 2 * EA * (L - L0) / L0 * u / L - P
+    u = brentq(balance, 0.0, 1.0, xtol=1e-15)
+    L = np.hypot(a, u)
+    assert_allclose(res.node_displacement("point", "C"), [0, 0, -u], atol=1e-10)
+    assert_allclose(res.tension("point", "L"), [EA * (L - L0) / L0] * 2, rtol=1e-9)
+    # reactions balance the load: the support pulls up by P/2 at each end
+    r = res.reactions("point")
+    assert_allclose(r["A"][2] + r["B"][2], P, rtol=1e-9)
+
+
+def _parabolic_cable(n, w=2.0e3, span=100.0, L0=102.0):
+    # start on a parabola of about the right length (a straight start would
+    # put the bars in compression)
+    d0 = span * np.sqrt(3 / 8 * (L0 / span - 1))
+    nodes = {f"P{k}": (span * k / n, 0.0, -4 * d0 * k / n * (1 - k / n)) for k in range(n + 1)}
+    members = [Member(f"E{k}", "bar", (f"P{k}", f"P{k+1}"), "s", length0=L0 / n) for k in range(n)]
+    sup = {f"P{k}": (False, True, False, False, False, False) for k in range(1, n)}
+    sup.update({"P0": (True,) * 6, f"P{n}": (True,) * 6})
+    # w per horizontal length, lumped at the nodes: w * span / n at each interior node
+    loads = [NodalLoad("w", f"P{k}", (0.0, 0.0, -w * span / n)) for k in range(1, n)]
+    spec = make_spec(nodes, members, sup, loads=loads,
+                     materials={"st": Material("st", E=1.6e11, G=1.6e11 / 2.6)},
+                     sections={"s": Section("s", "st", area=5.0e-3)})
+    res = cablefe.solve(cablefe.build_model(spec))
+    assert res.all_converged
+    pos = res["w"].state.positions
+    m = res.model
+    mid = pos[m.node_index[f"P{n // 2}"]]
+    sag = -mid[2]
+    H = -res.reactions("w")["P0"][0]
+    length = np.sum(np.linalg.norm(np.diff(pos[[m.node_index[f"P{k}"] for k in range(n + 1)]], axis=0), axis=1))
+    return sag, H, length, res
+
+
+def test_parabolic_cable_thrust_and_length_converge_at_second_order():
+    # source: parabolic cable, H = w L^2 / (8 d) and arc length of the parabola
+    # (Irvine 1981, Cable Structures, ch. 2; common practice); exact parabola
+    # length S = L/2 sqrt(1+16r^2) + L/(8r) asinh(4r), r = d/L.
+    w, span = 2.0e3, 100.0
+    errors, ns = [], [4, 8, 16, 32]
+    for n in ns:
+        sag, H, length, _ = _parabolic_cable(n, w, span)
+        # lumped loads at the nodes put the nodes exactly on the parabola of
+        # the same thrust: H = w L^2 / 8d holds to round-off at every n
+        assert_allclose(H, w * span**2 / (8 * sag), rtol=1e-9)
+        r = sag / span
+        exact = span / 2 * np.sqrt(1 + 16 * r**2) + span / (8 * r) * np.arcsinh(4 * r)
+        errors.append(abs(length - exact) / exact)
+    rate = -np.polyfit(np.log(ns), np.log(errors), 1)[0]
+    assert_allclose(rate, 2.0, atol=0.1)
+
+
+def test_divided_catenary_is_exact_and_bar_chain_converges_to_it():
+    # source: Irvine 1981, Cable Structures, §1.3: a cable divided into exact
+    # elastic catenary elements has its nodes on the same exact curve as one
+    # element; a chain of bars with lumped weight converges to it at order 2.
+    span, dz, L0 = 120.0, 20.0, 128.0
+    mat = {"st": Material("st", E=1.6e11, G=1.6e11 / 2.6, unit_weight=0.0)}
+    sec = {"s": Section("s", "st", area=2.0e-3, weight=150.0)}
+
+    def hang(kind, n):
+        spec = make_spec({"A": (0, 0, 0), "B": (span, 0, dz)},
+                         [Member("C", kind, ("A", "B"), "s", length0=L0, divide=n)],
+                         {"A": (True,) * 6, "B": (True,) * 6},
+                         loads=[SelfWeight("g")], materials=mat, sections=sec)
+        return cablefe.solve(cablefe.build_model(spec))
+
+    one = hang("cable", 1)
+    H1, V1 = one["g"].responses["cable"].H[0], one["g"].responses["cable"].V[0]
+    eight = hang("cable", 8)
+    assert eight.all_converged
+    assert_allclose(-eight.reactions("g")["A"][0], H1, rtol=1e-9)
+    assert_allclose(eight.reactions("g")["B"][2], V1, rtol=1e-9)
+    # bar chains with the weight lumped at the nodes
+    ns, errs = [8, 16, 32, 64], []
+    for n in ns:
+        r = hang("bar", n)
+        errs.append(abs(-r.reactions("g")["A"][0] - H1) / H1)
+    rate = -np.polyfit(np.log(ns), np.log(errs), 1)[0]
+    assert_allclose(rate, 2.0, atol=0.15)
+
+
+def _net_spec(rotation=np.eye(3), shift=np.zeros(3), weight=False):
+    nodes, members, sup = {}, [], {}
+    for i in range(4):
+        for j in range(4):
+            x = np.array([i * 2.0, j * 2.0, 0.3 * (i - 1.5) * (j - 1.5)])
+            nodes[f"N{i}{j}"] = tuple(rotation @ x + shift)
+            if i in (0, 3) or j in (0, 3):
+                sup[f"N{i}{j}"] = (True, True, True, False, False, False)
+    for i in range(4):
+        for j in range(4):
+            if i < 3 and 0 < j < 3:
+                members.append(Member(f"X{i}{j}", "cable", (f"N{i}{j}", f"N{i+1}{j}"), "s", pretension=5e3))
+            if j < 3 and 0 < i < 3:
+                members.append(Member(f"Y{i}{j}", "bar", (f"N{i}{j}", f"N{i}{j+1}"), "s", pretension=4e3,
+                                      tension_only=True))
+    load = rotation @ np.array([300.0, -200.0, -1500.0])
+    loads = [NodalLoad("p", "N11", tuple(load)), NodalLoad("p", "N22", tuple(0.5 * load))]
+    if weight:
+        loads.append(SelfWeight("p"))
+    return make_spec(nodes, members, sup, loads=loads)
+
+
+def _rot(axis, angle):
+    axis = np.asarray(axis, float) / np.linalg.norm(axis)
+    K = np.array([[0, -axis[2], axis[1]], [axis[2], 0, -axis[0]], [-axis[1], axis[0], 0]])
+    return np.eye(3) + np.sin(angle) * K + (1 - np.cos(angle)) * K @ K
+
+
+@settings(max_examples=8, deadline=None)
+@given(st.lists(st.floats(-1, 1), min_size=3, max_size=3).filter(lambda v: np.linalg.norm(v) > 0.1),
+       st.floats(-np.pi, np.pi), st.lists(st.floats(-50, 50), min_size=3, max_size=3))
+def test_rigid_motion_leaves_tensions_unchanged(axis, angle, shift):
+    # source: objectivity of the continuum (Truesdell & Noll 1965, The
+    # non-linear field theories of mechanics): forces are frame-indifferent.
+    base = cablefe.solve(cablefe.build_model(_net_spec()))
+    moved = cablefe.solve(cablefe.build_model(_net_spec(_rot(axis, angle), np.array(shift))))
+    assert base.all_converged and moved.all_converged
+    assert_allclose(moved.member_forces("p").tension, base.member_forces("p").tension, rtol=1e-7, atol=1e-6)
+
+
+@settings(max_examples=5, deadline=None)
+@given(st.floats(-np.pi, np.pi), st.lists(st.floats(-50, 50), min_size=3, max_size=3))
+def test_heavy_model_is_invariant_under_rotation_about_gravity(angle, shift):
+    # source: as above; with weight acting in -z only rotations about z keep the load
+    base = cablefe.solve(cablefe.build_model(_net_spec(weight=True)))
+    moved = cablefe.solve(cablefe.build_model(_net_spec(_rot([0, 0, 1], angle), np.array(shift), True)))
+    assert_allclose(moved.member_forces("p").tension, base.member_forces("p").tension, rtol=1e-7, atol=1e-6)
+
+
+def test_temperature_and_support_movement_of_a_tie():
+    # source: linear thermoelasticity of a restrained bar, N = -EA alpha dT
+    # (Timoshenko & Goodier 1951, Theory of Elasticity, ch. 14), here with the
+    # geometrically exact strain; and a support moved along the tie adds
+    # EA * d / L0.  Exact for a straight bar.
+    mat = {"st": Material("st", E=2.0e11, G=7.7e10, alpha=1.2e-5)}
+    spec = make_spec({"A": (0, 0, 0), "B": (10, 0, 0)},
+                     [Member("T", "bar", ("A", "B"), "s", pretension=50e3)],
+                     {"A": (True,) * 6, "B": (True,) * 6},
+                     loads=[TemperatureLoad("cold", ("T",), -20.0),
+                            PrescribedDisplacement("pull", "B", (0.004, 0.0, 0.0))],
+                     materials=mat)
+    res = cablefe.solve(cablefe.build_model(spec))
+    L0 = 10.0 / (1 + 50e3 / EA)
+    L0c = L0 * (1 - 1.2e-5 * 20)
+    assert_allclose(res.tension("cold", "T")[0], EA * (10.0 - L0c) / L0c, rtol=1e-10)
+    assert_allclose(res.tension("pull", "T")[0], EA * (10.004 - L0) / L0, rtol=1e-10)
+    assert_allclose(res.node_displacement("pull", "B"), [0.004, 0, 0], atol=1e-14)
+
+
+def test_missing_support_is_reported_as_a_mechanism():
+    spec = make_spec({"A": (0, 0, 0), "B": (10, 0, 0), "C": (20, 0, 0)},
+                     [Member("T1", "bar", ("A", "B"), "s"), Member("T2", "bar", ("B", "C"), "s")],
+                     {"A": (True,) * 6, "C": (True,) * 6},
+                     loads=[NodalLoad("p", "B", (0, 0, -1e3))])
+    res = cablefe.solve(cablefe.build_model(spec))
+    r = res["p"]
+    assert not r.converged
+    assert r.outcome.status == "mechanism"
+    assert "B y" in r.outcome.message and "B z" in r.outcome.message
