@@ -154,6 +154,9 @@ def main(argv=None) -> int:
     except FileNotFoundError as exc:
         print(f"cablefe: {exc.filename}: file not found", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into a pager or head that closed early
+        sys.stderr.close()
+        return 0
     except KeyboardInterrupt:
         print("cablefe: interrupted; no partial files were left under final names", file=sys.stderr)
         return 130

@@ -194,7 +194,11 @@ def _section_data(spec: CaseSpec, member, key):
     except KeyError:
         raise CaseError(f"{key}.section", f'no section named "{member.section}" '
                         f'(known: {", ".join(spec.sections)})') from None
-    mat = spec.materials[sec.material]
+    try:
+        mat = spec.materials[sec.material]
+    except KeyError:
+        raise CaseError(f"sections.{sec.name}.material", f'no material named "{sec.material}" '
+                        f'(known: {", ".join(spec.materials)})') from None
     weight = sec.weight if sec.weight is not None else sec.area * mat.unit_weight
     return sec, mat, weight
 
@@ -233,7 +237,7 @@ def build_model(spec: CaseSpec) -> Model:
         n = int(mem.divide)
         interior = mem.interior
         chain = [index[a]]
-        sag = _starting_sag(mem, chord, xa, xb)
+        hanging = None if interior is not None else _hanging_start(mem, xa, xb, weight, mat.E * sec.area)
         for k in range(1, n):
             nid = f"{mem.id}.{k}"
             if nid in index:
@@ -242,9 +246,10 @@ def build_model(spec: CaseSpec) -> Model:
             node_ids.append(nid)
             if interior is not None:
                 coords.append(tuple(interior[k - 1]))
+            elif hanging is not None:
+                coords.append(tuple(hanging[k - 1]))
             else:
-                s_k = k / n
-                coords.append(tuple(xa + (xb - xa) * s_k - np.array([0.0, 0.0, 4.0 * sag * s_k * (1 - s_k)])))
+                coords.append(tuple(xa + (xb - xa) * k / n))
             chain.append(index[nid])
         chain.append(index[b])
         family = mem.type
@@ -312,8 +317,9 @@ def build_model(spec: CaseSpec) -> Model:
     restrained = supported.copy()
     lonely = np.flatnonzero(~active)
     if lonely.size:
-        log.warning("nodes joined to no member are held fixed: %s",
-                    ", ".join(node_ids[k] for k in lonely[:10]))
+        loose = [node_ids[k] for k in lonely if node_ids[k] not in spec.supports]
+        if loose:
+            log.warning("nodes joined to no member are held fixed: %s", ", ".join(loose[:10]))
         g = dof[lonely].ravel()
         restrained[g[g >= 0]] = True
 
@@ -360,18 +366,53 @@ def build_model(spec: CaseSpec) -> Model:
     return replace(model, load_cases=MappingProxyType(cases), combinations=combos)
 
 
-def _starting_sag(mem, chord, xa, xb) -> float:
-    """Sag (m) of the parabola on which the interior nodes of a divided
-    cable or bar start when its unstressed length exceeds the chord, so that
-    the solver starts near the hanging shape instead of from a straight,
-    compressed or slack line: S ~ c (1 + 8/3 (d/c)^2) solved for d
-    (parabolic cable length, Irvine 1981, ch. 2)."""
+def _hanging_start(mem, xa, xb, weight, EA) -> np.ndarray | None:
+    """Starting points (divide - 1, 3) for the interior nodes of a divided
+    cable or bar whose unstressed length exceeds its chord; None otherwise.
+
+    The nodes are put on a parabola in the vertical plane of the chord as a
+    chain of equal links, each stretched by about the strain the member's own
+    weight will give it, H / EA with H = w c^2 / (8 d) (parabolic cable,
+    Irvine 1981, ch. 2); the sag is chosen so that the chain ends at the far
+    node.  The solver then starts near the hanging shape with every element
+    equally taut, instead of from a straight, compressed or slack line.
+    """
     if mem.type not in ("cable", "bar") or mem.length0 is None or mem.divide < 2:
-        return 0.0
+        return None
+    chord = float(np.linalg.norm(xb - xa))
     horizontal = float(np.hypot(*(xb - xa)[:2]))
     if mem.length0 <= chord or horizontal < 1e-6 * chord:
-        return 0.0
-    return chord * float(np.sqrt(3.0 / 8.0 * (mem.length0 / chord - 1.0)))
+        return None
+    from scipy.optimize import brentq
+    n = int(mem.divide)
+    d_par = chord * float(np.sqrt(3.0 / 8.0 * (mem.length0 / chord - 1.0)))
+    strain = min(weight * chord**2 / (8.0 * d_par) / EA, 1e-2) if weight > 0 else 1e-6
+    link = mem.length0 * (1.0 + strain) / n
+    if link * n <= chord:
+        return None
+
+    def point(t, d):
+        return xa + t * (xb - xa) - np.array([0.0, 0.0, 4.0 * d * t * (1.0 - t)])
+
+    def walk(d):
+        ts = [0.0]
+        for _ in range(n):
+            t0 = ts[-1]
+            p0 = point(t0, d)
+            hi = t0 + link / chord
+            while np.linalg.norm(point(hi, d) - p0) < link:
+                hi += link / chord
+            ts.append(brentq(lambda t: np.linalg.norm(point(t, d) - p0) - link, t0, hi,
+                             xtol=1e-14))
+        return np.array(ts)
+
+    hi = d_par
+    while walk(hi)[-1] > 1.0:
+        hi *= 2.0
+    lo = 0.0
+    d = brentq(lambda d: walk(d)[-1] - 1.0, lo, hi, xtol=1e-12 * chord)
+    ts = walk(d)
+    return np.array([point(t, d) for t in ts[1:-1]])
 
 
 def _default_up(xi, xj):

@@ -62,7 +62,7 @@ _EZ = np.array([0.0, 0.0, 1.0])
 # ---------------------------------------------------------------------------
 
 def _vector(name, value, n=None):
-    """Float array of shape (n,) broadcast from a scalar or (n,) input, never a view to mutate."""
+    """Finite float array of shape (n,) from a scalar or (n,) input (a read-only view: never written)."""
     arr = np.asarray(value, dtype=float)
     if arr.ndim > 1:
         raise ValueError(f"{name} must be a scalar or a 1-D array per element, got shape {arr.shape}")
@@ -105,7 +105,7 @@ def _points(name, value):
 # ---------------------------------------------------------------------------
 
 def _log1p_over_x(x):
-    """``log1p(x)/x`` for ``x >= 0``, 1 at 0 (Kahan's trick: exact to a few ulp)."""
+    """``log1p(x)/x`` for ``x >= 0``, 1 at 0 (Kahan's trick: accurate to a few ulp)."""
     u = 1.0 + x
     d = u - 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -115,7 +115,7 @@ def _log1p_over_x(x):
 
 
 def _atan_over_x(x):
-    """``arctan(x)/x`` for ``x >= 0``, series below 1e-4 where the quotient loses digits."""
+    """``arctan(x)/x`` for ``x >= 0``, by its series below 1e-4 (1 at 0 instead of 0/0)."""
     small = x < 1e-4
     xs = np.where(small, 1.0, x)
     x2 = x * x
@@ -318,18 +318,44 @@ def _scaled_residual(H, V, l, h, L0, W, EA, s_l, s_h):
     return lc - l, hc - h, (lc - l) / s_l, (hc - h) / s_h
 
 
-def _residual_scales(l, h, L0):
+def _residual_scales(l, h, L0, W, EA):
     # l itself scales the first residual: the forward map gives l to a few ulp
     # (a sum of positive terms), which pins H even for nearly vertical chords.
-    # h can be a small difference of the two halves of the cable, hence the floor.
-    return l, np.maximum(np.hypot(l, h), 1e-2 * L0)
+    # h can be a small difference of the two halves of the cable, each up to
+    # about L0 (1 + W/EA) long, which sets the floor of its rounding error.
+    return l, np.maximum(np.hypot(l, h), 1e-2 * L0 * (1.0 + W / EA))
+
+
+def _correction_size(H, V, l, h, L0, W, EA):
+    """Length of the Newton correction relative to (H, T): picks the best start.
+
+    The residual itself is a poor judge: a nearly straight cable meets its
+    chord to within a small residual under almost any tension.
+    """
+    lc, hc = _chord(H, V, L0, W, EA)
+    F_lH, F_lV, F_hV = _flexibility(H, V, L0, W, EA)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        det = F_lH * F_hV - F_lV * F_lV
+        dH = (F_hV * (lc - l) - F_lV * (hc - h)) / det
+        dV = (F_lH * (hc - h) - F_lV * (lc - l)) / det
+        size = np.hypot(dH / H, dV / np.maximum(np.hypot(H, V), np.hypot(H, V - W)))
+    return np.where(np.isfinite(size), size, np.inf)
 
 
 def _newton(l, h, L0, W, EA, H, V, tol, max_iter):
-    """Damped Newton on Irvine's equations for all elements at once (H stays > 0)."""
+    """Damped Newton on Irvine's equations for all elements at once (H stays > 0).
+
+    The damping uses the natural monotonicity test (Deuflhard 2004, Newton
+    Methods for Nonlinear Problems, ch. 3; from memory): a step t is accepted when
+    the simplified correction ``F_k^-1 r(x_k + t dx)`` is shorter than
+    ``(1 - t/4) |dx|``.  The test is affine invariant, so it does not stall in
+    the narrow curved valleys that the residual norm has for nearly vertical or
+    nearly taut light cables.  Corrections are measured relative to (H, T).
+    A step that lowers the scaled residual norm is accepted too.
+    """
     H = H.copy()
     V = V.copy()
-    s_l, s_h = _residual_scales(l, h, L0)
+    s_l, s_h = _residual_scales(l, h, L0, W, EA)
     active = np.ones(H.shape, dtype=bool)
     for _ in range(max_iter):
         idx = np.flatnonzero(active)
@@ -338,13 +364,18 @@ def _newton(l, h, L0, W, EA, H, V, tol, max_iter):
         Hk, Vk = H[idx], V[idx]
         args = (l[idx], h[idx], L0[idx], W[idx], EA[idx], s_l[idx], s_h[idx])
         rl, rh, ql, qh = _scaled_residual(Hk, Vk, *args)
-        err = np.maximum(np.abs(ql), np.abs(qh))
+        done = np.maximum(np.abs(ql), np.abs(qh)) <= tol
         merit = np.hypot(ql, qh)
         F_lH, F_lV, F_hV = _flexibility(Hk, Vk, L0[idx], W[idx], EA[idx])
         det = F_lH * F_hV - F_lV * F_lV
-        dH = -(F_hV * rl - F_lV * rh) / det
-        dV = -(F_lH * rh - F_lV * rl) / det
-        done = err <= tol
+
+        def correction(r_l, r_h, j=slice(None)):
+            return (-(F_hV[j] * r_l - F_lV[j] * r_h) / det[j], -(F_lH[j] * r_h - F_lV[j] * r_l) / det[j])
+
+        dH, dV = correction(rl, rh)
+        sigma_H = Hk
+        sigma_V = np.maximum(np.hypot(Hk, Vk), np.hypot(Hk, Vk - W[idx]))
+        size = np.hypot(dH / sigma_H, dV / sigma_V)
         # keep H > 0: at most a tenfold drop, at most a hundredfold rise per step
         t = np.ones_like(Hk)
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -352,18 +383,24 @@ def _newton(l, h, L0, W, EA, H, V, tol, max_iter):
             t = np.where(dH > 99.0 * Hk, 99.0 * Hk / dH, t)
         t = np.where(done, 1.0, t)
         accepted = np.zeros(idx.size, dtype=bool)
-        pending = np.isfinite(dH) & np.isfinite(dV)
-        for _ in range(50):  # backtracking on the scaled residual norm
+        pending = np.isfinite(size)
+        for _ in range(50):
             j = np.flatnonzero(pending)
             if j.size == 0:
                 break
             Ht = Hk[j] + t[j] * dH[j]
             Vt = Vk[j] + t[j] * dV[j]
             sub = tuple(a[j] for a in args)
-            _, _, qlt, qht = _scaled_residual(Ht, Vt, *sub)
-            mt = np.hypot(qlt, qht)
+            rlt, rht, qlt, qht = _scaled_residual(Ht, Vt, *sub)
+            bH, bV = correction(rlt, rht, j)
+            simplified = np.hypot(bH / sigma_H[j], bV / sigma_V[j])
             errt = np.maximum(np.abs(qlt), np.abs(qht))
-            ok = np.isfinite(mt) & (Ht > 0.0) & ((mt < merit[j]) | (done[j] & (errt <= tol)))
+            # near the solution the correction is blurred by the rounding of the
+            # stiff (tension) direction, while the residual still shows progress
+            # in the soft one (chord rotation): either decrease is progress
+            monotone = (simplified <= (1.0 - 0.25 * t[j]) * size[j]) | (np.hypot(qlt, qht) < merit[j])
+            # the polishing step of a converged element must keep it converged
+            ok = np.isfinite(simplified) & (Ht > 0.0) & np.where(done[j], errt <= tol, monotone)
             Hk[j[ok]] = Ht[ok]
             Vk[j[ok]] = Vt[ok]
             accepted[j[ok]] = True
@@ -394,6 +431,18 @@ def _vertical_statics(h, L0, W, EA):
     return V
 
 
+def _check_solver(guess, n, tol, max_iter):
+    if not (tol > 0.0) or int(max_iter) < 1:
+        raise ValueError(f"need tol > 0 and max_iter >= 1, got tol={tol}, max_iter={max_iter}")
+    if guess is not None:
+        try:
+            Hw, Vw = guess
+            np.broadcast_to(np.asarray(Hw, dtype=float), (n,))
+            np.broadcast_to(np.asarray(Vw, dtype=float), (n,))
+        except (TypeError, ValueError) as err:
+            raise ValueError(f"guess must be a pair (H, V) of arrays with {n} entries each") from err
+
+
 def _classify(l, h, L0, weight):
     c = np.hypot(l, h)
     weightless = weight == 0.0
@@ -421,26 +470,23 @@ def _solve(l, h, L0, weight, EA, guess, tol, max_iter):
     g = np.flatnonzero(general)
     if g.size:
         lg, hg, L0g, wg, Wg, EAg = l[g], h[g], L0[g], weight[g], W[g], EA[g]
-        s_l, s_h = _residual_scales(lg, hg, L0g)
         candidates = [_guess_taut(lg, hg, L0g, wg, EAg)]
         slackish = L0g > np.hypot(lg, hg)
         if np.any(slackish):
             Hc, Vc = _guess_inextensible(lg, hg, L0g, wg)
             candidates.append((np.where(slackish, Hc, np.nan), np.where(slackish, Vc, np.nan)))
         if guess is not None:
-            Hw = np.asarray(guess[0], dtype=float)
-            Vw = np.asarray(guess[1], dtype=float)
-            Hw = np.broadcast_to(Hw, (n,))[g]
-            Vw = np.broadcast_to(Vw, (n,))[g]
+            Hw, Vw = guess
+            Hw = np.broadcast_to(np.asarray(Hw, dtype=float), (n,))[g]
+            Vw = np.broadcast_to(np.asarray(Vw, dtype=float), (n,))[g]
             usable = np.isfinite(Hw) & np.isfinite(Vw) & (Hw > 0.0)
             candidates.append((np.where(usable, Hw, np.nan), np.where(usable, Vw, np.nan)))
         best_H, best_V = candidates[0]
         best = np.full(g.size, np.inf)
         for Hc, Vc in candidates:
-            with np.errstate(invalid="ignore"):
-                _, _, ql, qh = _scaled_residual(np.where(Hc > 0.0, Hc, 1.0), np.nan_to_num(Vc), lg, hg, L0g,
-                                                Wg, EAg, s_l, s_h)
-            merit = np.where(np.isfinite(Hc) & (Hc > 0.0), np.hypot(ql, qh), np.inf)
+            valid = np.isfinite(Hc) & (Hc > 0.0) & np.isfinite(Vc)
+            merit = np.where(valid, _correction_size(np.where(valid, Hc, 1.0), np.where(valid, Vc, 0.0),
+                                                     lg, hg, L0g, Wg, EAg), np.inf)
             better = merit < best
             best = np.where(better, merit, best)
             best_H = np.where(better, Hc, best_H)
@@ -532,7 +578,7 @@ def solve_end_forces(l, h, unstressed_length, weight, EA, guess=None, tol=1e-12,
         finite are ignored.
     tol : float
         Converged when ``|l(H,V) - l| <= tol * l`` and
-        ``|h(H,V) - h| <= tol * max(chord, 0.01 L0)``; one more Newton step
+        ``|h(H,V) - h| <= tol * max(chord, 0.01 L0 (1 + W/EA))``; one more Newton step
         is then taken, which makes the result accurate to rounding.
     max_iter : int
 
@@ -549,8 +595,7 @@ def solve_end_forces(l, h, unstressed_length, weight, EA, guess=None, tol=1e-12,
     _check_cable(L0, weight, EA)
     if np.any(l < 0.0):
         raise ValueError(f"l (horizontal projection) must be >= 0 m, got {l[l < 0.0][:3]}")
-    if not (tol > 0.0) or int(max_iter) < 1:
-        raise ValueError(f"need tol > 0 and max_iter >= 1, got tol={tol}, max_iter={max_iter}")
+    _check_solver(guess, n, tol, max_iter)
     return _solve(l, h, L0, weight, EA, guess, float(tol), int(max_iter))
 
 
@@ -635,6 +680,7 @@ def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=Tru
     L0, EA, weight = (_vector("unstressed_length", unstressed_length, n), _vector("EA", EA, n),
                       _vector("weight", weight, n))
     _check_cable(L0, weight, EA)
+    _check_solver(guess, n, tol, max_iter)
     d = xj - xi
     l = np.hypot(d[:, 0], d[:, 1])
     h = d[:, 2]

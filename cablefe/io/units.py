@@ -174,7 +174,7 @@ def _unit_info(text: str) -> tuple[float, Any]:
             "use delta_degC, delta_degF or K"
         ) from None
     except Exception as exc:  # pint's tokenizer raises several plain exception types
-        raise _UnitTextError(f'cannot read the unit "{text}" ({type(exc).__name__}: {exc})') from None
+        raise _UnitTextError(f'cannot read the unit "{text}"') from None
     if not isinstance(quantity, ureg.Quantity):
         raise _UnitTextError(f'"{text}" is not a unit')
     try:
@@ -298,6 +298,8 @@ class Quantities:
                 return magnitude
             raise CaseError(key, f'"{text}" has no unit; expected {KINDS[kind].words}: write a bare '
                                  f"number for the file's units, or a unit like {KINDS[kind].example}")
+        if unit_text.startswith("/"):  # "1.2e-5/K": the number divides by the unit
+            unit_text = "1" + unit_text
         try:
             factor, dimensionality = _unit_info(unit_text)
         except _UnitTextError as exc:

@@ -179,7 +179,8 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
             continue
         cuts += 1
         log.info("increment to %.4f failed (%s); cutting", target, result.failure)
-        if cuts > settings.max_cuts:
+        # a step that no longer moves the load factor cannot succeed either
+        if cuts > settings.max_cuts or step * 0.5 < 1e-10:
             if result.failure == "mechanism":
                 status, msg = "mechanism", str(result.mechanism)
             elif result.failure == "non-finite":

@@ -1,0 +1,547 @@
+"""Elastic catenary element: forward map, inverse, forces, tangent, limits, shape."""
+import logging
+
+import mpmath as mp
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+from numpy.testing import assert_allclose
+
+from cablefe.elements import catenary as cat
+
+EPS = np.finfo(float).eps
+mp.mp.dps = 40
+
+
+# ---------------------------------------------------------------------------
+# independent references, evaluated at 40 digits
+# ---------------------------------------------------------------------------
+
+def irvine_chord_mp(H, V, L0, w, EA):
+    """Irvine's chord equations at high precision (mpmath numbers in and out).
+
+    source: Irvine 1981, Cable Structures, §1.3, elastic catenary between
+    A(0, 0) and B(l, h), V the vertical reaction at B.  For w = 0 the same
+    equations reduce to Hooke's law along a straight tie.
+    """
+    H, V, L0, w, EA = (mp.mpf(x) for x in (H, V, L0, w, EA))
+    W = w * L0
+    if W == 0:
+        T = mp.sqrt(H**2 + V**2)
+        return H * L0 * (1 / EA + 1 / T), V * L0 * (1 / EA + 1 / T)
+    l = H * L0 / EA + H * L0 / W * (mp.asinh(V / H) - mp.asinh((V - W) / H))
+    h = W * L0 / EA * (V / W - mp.mpf(1) / 2) + H * L0 / W * (mp.sqrt(1 + (V / H) ** 2)
+                                                              - mp.sqrt(1 + ((V - W) / H) ** 2))
+    return l, h
+
+
+def irvine_profile_mp(s, H, V, L0, w, EA):
+    """Point (x, z) at unstressed coordinate s from A on the elastic catenary.
+
+    source: Irvine 1981, Cable Structures, §1.3, Lagrangian profile of the
+    elastic catenary (from memory; at s = L0 it is the chord equation above).
+    """
+    s, H, V, L0, w, EA = (mp.mpf(x) for x in (s, H, V, L0, w, EA))
+    va = V - w * L0
+    x = H * s / EA + H / w * (mp.asinh((va + w * s) / H) - mp.asinh(va / H))
+    z = (va * s + w * s**2 / 2) / EA + H / w * (mp.sqrt(1 + ((va + w * s) / H) ** 2) - mp.sqrt(1 + (va / H) ** 2))
+    return x, z
+
+
+def place(l, h, azimuth, origin=(0.0, 0.0, 0.0)):
+    """Element end positions for a chord (l, h) turned by an azimuth about z."""
+    xi = np.array([origin], dtype=float)
+    xj = xi + np.array([[l * np.cos(azimuth), l * np.sin(azimuth), h]])
+    return xi, xj
+
+
+def fd_tangent(xi, xj, L0, EA, w, step):
+    """Central differences of the internal force, one step per element."""
+    x = np.concatenate([xi, xj], axis=1)
+    K = np.zeros((len(x), 6, 6))
+    for c in range(6):
+        xp, xm = x.copy(), x.copy()
+        xp[:, c] += step
+        xm[:, c] -= step
+        fp = cat.response(xp[:, :3], xp[:, 3:], L0, EA, w, want_tangent=False).force
+        fm = cat.response(xm[:, :3], xm[:, 3:], L0, EA, w, want_tangent=False).force
+        K[:, :, c] = (fp - fm) / (2.0 * step[:, None])
+    return K
+
+
+# ---------------------------------------------------------------------------
+# forward map and flexibility
+# ---------------------------------------------------------------------------
+
+FORWARD_CASES = [
+    # H, V, L0, w, EA
+    (1.0e3, 600.0, 100.0, 10.0, 1.0e8),          # level-ish, vertex inside
+    (1.0e3, 600.0, 100.0, 1.0e-9, 1.0e8),        # W/H = 1e-10: naive form loses every digit
+    (1.0e3, 0.05, 100.0, 1.0e-3, 1.0e8),         # W/H = 1e-4, almost weightless and level
+    (1.0e8, 2.0e7, 50.0, 20.0, 1.0e10),          # H very large (W/H = 1e-5), inclined
+    (5.0, 1.0e3, 100.0, 10.0, 1.0e7),            # H tiny: slack, heavy, steep
+    (1.0e3, -300.0, 100.0, 10.0, 1.0e8),         # B below A, both ends of one sign
+    (1.0e3, 5.0e3, 100.0, 10.0, 1.0e8),          # steep up, both ends of one sign
+    (1.0e3, 2.0e3, 100.0, 0.0, 1.0e8),           # weightless tie at 63 degrees
+]
+
+
+@pytest.mark.parametrize("H, V, L0, w, EA", FORWARD_CASES)
+def test_forward_map_matches_irvine_equations(H, V, L0, w, EA):
+    # source: Irvine 1981, Cable Structures, §1.3 (chord equations), at 40 digits
+    l, h = cat.catenary_chord([H], [V], [L0], [w], [EA])
+    l_ref, h_ref = (float(x) for x in irvine_chord_mp(H, V, L0, w, EA))
+    # l is a sum of positive terms: a few tens of roundings at most (1e-14 ~ 45 eps);
+    # h can be a small difference of the two halves of the cable, so its error
+    # is relative to L0, not to h
+    assert_allclose(l, l_ref, rtol=1e-14)
+    assert_allclose(h, h_ref, rtol=1e-14, atol=1e-14 * L0)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.floats(-4.0, 3.0), st.floats(-70.0, 70.0), st.floats(0.0, 3.0), st.floats(-5.0, -2.0))
+def test_forward_map_matches_irvine_equations_everywhere(log_sag, angle, log_L0, log_strain):
+    # source: Irvine 1981, Cable Structures, §1.3 (chord equations), at 40 digits
+    L0, w = 10.0**log_L0, 25.0
+    W = w * L0
+    H = W / 10.0**log_sag
+    V = 0.5 * W + H * np.tan(np.radians(angle))
+    EA = np.hypot(H, max(abs(V), abs(V - W))) / 10.0**log_strain
+    l, h = cat.catenary_chord([H], [V], [L0], [w], [EA])
+    l_ref, h_ref = (float(x) for x in irvine_chord_mp(H, V, L0, w, EA))
+    # the reference is exact to double precision; the asinh sums may amplify
+    # the rounding of V - W by the slope, still within 1e-13 of the length
+    assert_allclose(l, l_ref, rtol=1e-13)
+    assert_allclose(h, h_ref, rtol=1e-13, atol=1e-13 * L0)
+
+
+@pytest.mark.parametrize("H, V, L0, w, EA", FORWARD_CASES)
+def test_flexibility_is_derivative_of_irvine_equations(H, V, L0, w, EA):
+    # source: Irvine 1981, Cable Structures, §1.3, differentiated by mpmath at 40 digits
+    F = cat.catenary_flexibility([H], [V], [L0], [w], [EA])[0]
+    m = [mp.mpf(x) for x in (H, V, L0, w, EA)]
+    F_ref = np.array([[float(mp.diff(lambda x: irvine_chord_mp(x, m[1], *m[2:])[i], m[0])),
+                       float(mp.diff(lambda x: irvine_chord_mp(m[0], x, *m[2:])[i], m[1]))] for i in (0, 1)])
+    # the analytic entries are sums of accurate terms; 1e-12 leaves room for the
+    # few cases where a term is a difference of two (log1p and atan2 forms)
+    assert_allclose(F, F_ref, rtol=1e-12, atol=1e-13 * np.abs(F_ref).max())
+    assert_allclose(F[0, 1], F[1, 0], rtol=0, atol=0)   # complementary energy: symmetric
+
+
+def test_forward_map_is_continuous_as_weight_vanishes():
+    # the weightless tie is the W -> 0 limit of Irvine's equations (Hooke's law)
+    H, V, L0, EA = 2.0e3, 1.5e3, 80.0, 5.0e7
+    l0, h0 = cat.catenary_chord([H], [V], [L0], [0.0], [EA])
+    for w in (1e-3, 1e-6, 1e-9, 1e-12):
+        l, h = cat.catenary_chord([H], [V + 0.5 * w * L0], [L0], [w], [EA])
+        # the change is of order (W/T)^2 relative (sag shortening)
+        W = w * L0
+        assert_allclose(l, l0, rtol=(W / H) ** 2 + 4 * EPS)
+        assert_allclose(h, h0, rtol=(W / H) ** 2 + 4 * EPS)
+
+
+# ---------------------------------------------------------------------------
+# inverse map
+# ---------------------------------------------------------------------------
+
+element = st.tuples(
+    st.booleans(),                 # weightless?
+    st.floats(-4.0, 2.5),          # log10 W/H: from very taut to very slack
+    st.floats(-60.0, 60.0),        # chord slope angle, degrees
+    st.floats(0.0, 2.7),           # log10 L0 / m
+    st.floats(-1.0, 4.0),          # log10 w / (N/m)
+    st.floats(-4.0, -2.0),         # log10 of the largest strain
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(element, min_size=1, max_size=8))
+def test_inverse_recovers_end_forces(elements):
+    # source: Irvine 1981, Cable Structures, §1.3: (l, h) from the chord
+    # equations at 40 digits, then solved back for (H, V) in one batch
+    H, V, L0, w, EA, l, h = ([] for _ in range(7))
+    for weightless, log_sag, angle, log_L0, log_w, log_strain in elements:
+        L0_k, w_k = 10.0**log_L0, (0.0 if weightless else 10.0**log_w)
+        W_k = 10.0**log_w * L0_k
+        H_k = W_k / 10.0**log_sag
+        # for a shallow cable the chord slope is about (V - W/2)/H
+        V_k = H_k * np.tan(np.radians(angle)) + 0.5 * w_k * L0_k
+        EA_k = np.hypot(H_k, max(abs(V_k), abs(V_k - w_k * L0_k))) / 10.0**log_strain
+        l_k, h_k = irvine_chord_mp(H_k, V_k, L0_k, w_k, EA_k)
+        for lst, val in zip((H, V, L0, w, EA, l, h), (H_k, V_k, L0_k, w_k, EA_k, float(l_k), float(h_k))):
+            lst.append(val)
+    H, V, L0, w, EA, l, h = map(np.array, (H, V, L0, w, EA, l, h))
+    Hs, Vs, converged = cat.solve_end_forces(l, h, L0, w, EA)
+    assert converged.all()
+    # (l, h) carry rounding of 1 ulp; the inverse amplifies it by at most about
+    # 1/strain <= 1e4 (taut cables), so 1e-9 keeps a 1e3 margin
+    assert_allclose(Hs, H, rtol=1e-9)
+    force_scale = np.maximum(H, w * L0)     # V may pass through zero
+    assert_allclose(Vs / force_scale, V / force_scale, rtol=1e-9, atol=1e-9)
+
+
+def test_cold_start_converges_for_extreme_chords():
+    # any chord / L0 / weight: from 1000 times slack to 5 % overstretched, level
+    # to exactly vertical, light to heavy (self-weight strain up to 5 %)
+    ratio, angle, weight_strain = np.meshgrid(np.geomspace(1e-3, 1.05, 13),
+                                              np.radians([-90, -89.999, -60, -20, 0, 10, 45, 80, 89.99, 90]),
+                                              np.geomspace(1e-7, 5e-2, 6), indexing="ij")
+    ratio, angle, weight_strain = ratio.ravel(), angle.ravel(), weight_strain.ravel()
+    L0 = np.full(ratio.size, 120.0)
+    EA = np.full(ratio.size, 3.0e8)
+    w = weight_strain * EA / L0
+    c = ratio * L0
+    l, h = np.abs(c * np.cos(angle)), c * np.sin(angle)
+    H, V, converged = cat.solve_end_forces(l, h, L0, w, EA)
+    assert converged.all()
+    inclined = l > cat.VERTICAL_TOLERANCE * L0
+    l2, h2 = cat.catenary_chord(H, V, L0, w, EA)
+    # the stopping test of solve_end_forces, checked from outside
+    assert_allclose(l2[inclined], l[inclined], rtol=1e-12)
+    h_scale = np.maximum(c, 1e-2 * L0 * (1 + w * L0 / EA))
+    assert_allclose((h2 - h) / h_scale, 0.0, rtol=0, atol=1e-12)
+
+
+def test_non_convergence_is_reported(caplog):
+    # a very slack heavy cable cannot be solved in one Newton step
+    l, h, L0, w, EA = np.array([1.0, 60.0]), np.array([0.3, 1.0]), np.array([200.0, 60.0]), 50.0, 1e8
+    with caplog.at_level(logging.WARNING, logger="cablefe.elements.catenary"):
+        _, _, converged = cat.solve_end_forces(l, h, L0, w, EA, max_iter=1)
+    assert not converged[0]
+    assert "did not converge" in caplog.text
+    _, _, converged = cat.solve_end_forces(l, h, L0, w, EA)
+    assert converged.all()
+
+
+def test_warm_start_reaches_the_cold_solution():
+    xi, xj = place(70.0, 12.0, 0.4)
+    L0, EA = np.array([75.0]), np.array([2.0e8])
+    cold = cat.response(xi, xj, L0, EA, [30.0])
+    # the assembly passes the previous H, V with a changed load factor and geometry
+    warm = cat.response(xi, xj + 0.3, L0, EA, [36.0], guess=(cold.H, cold.V))
+    again = cat.response(xi, xj + 0.3, L0, EA, [36.0])
+    assert warm.converged.all()
+    assert_allclose(warm.force, again.force, rtol=1e-12, atol=1e-12 * np.abs(again.force).max())
+    # a guess from a slack or vertical state (H = 0) falls back to the cold start
+    zero = cat.response(xi, xj + 0.3, L0, EA, [36.0], guess=(np.zeros(1), np.zeros(1)))
+    assert_allclose(zero.force, again.force, rtol=1e-12, atol=1e-12 * np.abs(again.force).max())
+
+
+# ---------------------------------------------------------------------------
+# element response
+# ---------------------------------------------------------------------------
+
+@pytest.mark.parametrize("H, V, w", [(800.0, 300.0, 12.0), (800.0, 2400.0, 12.0), (50.0, 900.0, 20.0),
+                                     (800.0, -150.0, 12.0)])
+def test_single_element_forces(H, V, w):
+    # source: Irvine 1981, Cable Structures, §1.3: the element placed on the
+    # chord of known end forces must return them
+    L0, EA, azimuth = 100.0, 4.0e8, 2.2
+    W = w * L0
+    l, h = (float(x) for x in irvine_chord_mp(H, V, L0, w, EA))
+    xi, xj = place(l, h, azimuth, origin=(3.0, -7.0, 11.0))
+    r = cat.response(xi, xj, [L0], [EA], [w])
+    e_h = np.array([np.cos(azimuth), np.sin(azimuth), 0.0])
+    e_z = np.array([0.0, 0.0, 1.0])
+    expected = np.concatenate([-H * e_h + (W - V) * e_z, H * e_h + V * e_z])
+    # (l, h) are rounded to 1 ulp; the inverse amplifies that by about the
+    # condition number of the flexibility (< 1e4 here)
+    assert_allclose(r.force[0], expected, rtol=1e-9, atol=1e-9 * np.hypot(H, V))
+    # the supports together carry the weight
+    assert_allclose(r.force[0, :3] + r.force[0, 3:], [0.0, 0.0, W], rtol=1e-14, atol=1e-14 * W)
+    T_i, T_j = np.hypot(H, V - W), np.hypot(H, V)
+    assert_allclose(r.end_tension[0], [T_i, T_j], rtol=1e-9)
+    assert_allclose(r.max_tension, max(T_i, T_j), rtol=1e-9)
+    # the tension is least at the vertex when it lies inside the span
+    assert_allclose(r.min_tension, H if V - W < 0 < V else min(T_i, T_j), rtol=1e-9)
+    assert not r.slack[0] and r.converged[0]
+
+
+def test_weightless_element_is_the_straight_tie():
+    # source: the case-file contract (interface v1): N = EA (L - L0)/L0
+    xi = np.array([[0.0, 0.0, 0.0], [1.0, 1.0, 1.0]])
+    xj = np.array([[3.0, 4.0, 12.0], [4.0, 5.0, 13.0]])       # chord 13
+    L0, EA = np.array([12.9, 13.5]), np.array([2.0e6, 2.0e6])
+    r = cat.response(xi, xj, L0, EA, [0.0, 0.0])
+    N = EA[0] * (13.0 - 12.9) / 12.9
+    e = np.array([3.0, 4.0, 12.0]) / 13.0
+    assert_allclose(r.force[0], np.concatenate([-N * e, N * e]), rtol=1e-13)
+    assert_allclose(r.end_tension[0], [N, N], rtol=1e-13)
+    k = EA[0] / L0[0] * np.outer(e, e) + N / 13.0 * (np.eye(3) - np.outer(e, e))
+    assert_allclose(r.tangent[0, 3:, 3:], k, rtol=1e-12, atol=1e-12 * EA[0] / L0[0])
+    assert_allclose(r.tangent[0, :3, 3:], -k, rtol=1e-12, atol=1e-12 * EA[0] / L0[0])
+    # slack: chord shorter than L0 carries nothing and has no stiffness
+    assert r.slack[1] and not r.slack[0]
+    assert np.all(r.force[1] == 0.0) and np.all(r.tangent[1] == 0.0)
+
+
+def test_tangent_is_continuous_as_weight_vanishes():
+    xi, xj = place(30.0, 18.0, 1.1)
+    L0, EA = np.array([34.5]), np.array([1.0e7])
+    tie = cat.response(xi, xj, L0, EA, [0.0])
+    light = cat.response(xi, xj, L0, EA, [1e-6])
+    # the sag effect on the stiffness is of relative order (W/N)^2 EA/N, here < 1e-12
+    scale = np.abs(tie.tangent).max()
+    assert_allclose(light.tangent, tie.tangent, rtol=0, atol=1e-9 * scale)
+    assert_allclose(light.force[0, 3:], tie.force[0, 3:], rtol=1e-9, atol=1e-9 * np.abs(tie.force).max())
+
+
+fd_state = st.tuples(
+    st.sampled_from(["inclined", "near-vertical", "weightless"]),
+    st.floats(0.3, 1.05),               # chord / L0
+    st.floats(-6.0, -2.0),              # log10 W/EA (self-weight strain)
+    st.floats(-89.0, 89.0),             # slope angle of the chord, degrees
+    st.floats(-4.0, -1.0),              # log10 l/c for nearly vertical chords
+    st.floats(0.0, 2.0 * np.pi),        # azimuth
+    st.floats(0.0, 2.3),                # log10 L0
+    st.floats(5.0, 9.0),                # log10 EA
+)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(fd_state, min_size=1, max_size=6))
+def test_tangent_is_derivative_of_internal_force(states):
+    xi, xj, L0, EA, w = [], [], [], [], []
+    for kind, ratio, log_wea, angle, log_lc, azimuth, log_L0, log_EA in states:
+        L0_k, EA_k = 10.0**log_L0, 10.0**log_EA
+        if kind == "weightless" and abs(ratio - 1.0) < 0.02:
+            ratio = 0.9   # the slack/taut kink of a weightless tie has no derivative
+        c = ratio * L0_k
+        beta = np.radians(angle)
+        if kind == "near-vertical":
+            beta = np.sign(angle or 1.0) * np.arccos(10.0**log_lc)
+        a, b = place(c * np.cos(beta), c * np.sin(beta), azimuth, origin=(1.0, 2.0, 3.0))
+        w_k = 0.0 if kind == "weightless" else 10.0**log_wea * EA_k / L0_k
+        for lst, val in zip((xi, xj, L0, EA, w), (a[0], b[0], L0_k, EA_k, w_k)):
+            lst.append(val)
+    xi, xj, L0, EA, w = map(np.array, (xi, xj, L0, EA, w))
+    r = cat.response(xi, xj, L0, EA, w)
+    assert r.converged.all()
+    K = r.tangent
+    K_max = np.abs(K).max(axis=(1, 2))
+    assert_allclose(K, np.transpose(K, (0, 2, 1)), rtol=0, atol=1e-14 * K_max.max())
+    # shortest length over which the response changes: the horizontal
+    # projection, the chord, and the movement that changes the least tension
+    # by its own size (T_min/|K|; for a weightless slack tie, the distance to
+    # going taut)
+    d = xj - xi
+    chord = np.linalg.norm(d, axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        tension_scale = np.where(r.slack, np.abs(chord - L0), r.min_tension / K_max)
+    scale = np.minimum(np.minimum(np.hypot(d[:, 0], d[:, 1]), chord), tension_scale)
+    step = 1e-4 * scale
+    Kfd = fd_tangent(xi, xj, L0, EA, w, step)
+    # central differences: truncation (step/scale)^2 = 1e-8 times a curvature
+    # factor below 1e2; round-off: forces are reproducible to about 1e-12
+    # relative (inner solve), divided by the step
+    f_max = np.abs(r.force).max(axis=1)
+    for k in range(len(L0)):
+        atol = 1e-6 * K_max[k] + 1e-12 * f_max[k] / step[k]
+        assert_allclose(K[k], Kfd[k], rtol=0, atol=atol)
+
+
+# ---------------------------------------------------------------------------
+# vertical chords
+# ---------------------------------------------------------------------------
+
+def test_vertical_hanging_cable_statics_and_isotropic_stiffness():
+    # source: statics of a cable hanging from node j with Hooke's law per
+    # element ds: stretched length L0 + L0 (V - W/2)/EA must equal the chord
+    L0, EA, w = 50.0, 1.0e7, 20.0
+    W = w * L0
+    h = 50.2
+    xi, xj = place(0.0, h, 0.0)
+    r = cat.response(xi, xj, [L0], [EA], [w])
+    V = 0.5 * W + EA * (h - L0) / L0
+    assert_allclose(r.force[0], [0, 0, W - V, 0, 0, V], rtol=1e-13, atol=1e-13 * V)
+    assert_allclose(r.end_tension[0], [V - W, V], rtol=1e-13)
+    assert not r.slack[0]
+    # horizontal stiffness: H/l -> 1/(dl/dH) with dl/dH = int (1/EA + 1/T) ds,
+    # the limit of Irvine's flexibility at H = 0 (about T/L for a taut cable)
+    k_h = 1.0 / (L0 / EA + L0 / W * np.log(V / (V - W)))
+    K = r.tangent[0, 3:, 3:]
+    assert_allclose(np.diag(K), [k_h, k_h, EA / L0], rtol=1e-12)
+    assert_allclose(K - np.diag(np.diag(K)), 0.0, atol=1e-12 * EA / L0)
+    # a chord a hair off vertical is the same element: no division by zero, no jump
+    xi2, xj2 = place(1e-6 * h, h, 0.7)
+    r2 = cat.response(xi2, xj2, [L0], [EA], [w])
+    # H changes by k_h * l, which moves the matrix by that much relative to T
+    assert_allclose(r2.tangent, r.tangent, rtol=0, atol=1e-6 * EA / L0)
+    assert_allclose(r2.force, r.force, rtol=0, atol=1e-6 * V)
+
+
+def test_vertical_folded_cable():
+    # source: statics of a cable folded on itself below two points on one
+    # vertical: zero tension at the fold, the two legs carry their own weight,
+    # leg lengths (1 + T/EA)-stretched add up to the cable and differ by h
+    L0, EA, w = 50.0, 1.0e7, 20.0
+    W = w * L0
+    h = 20.0
+    xi, xj = place(0.0, h, 0.0)
+    r = cat.response(xi, xj, [L0], [EA], [w])
+    V = 0.5 * W + h / (L0 / EA + 2.0 * L0 / W)
+    assert_allclose(r.force[0], [0, 0, W - V, 0, 0, V], rtol=1e-13)
+    assert r.slack[0] and r.converged[0]
+    assert_allclose(r.min_tension, 0.0, atol=0)
+    K = r.tangent[0, 3:, 3:]
+    assert np.all(np.isfinite(r.tangent))
+    # no horizontal stiffness at the fold; vertical: dh/dV = L0/EA + 2 L0/W
+    assert_allclose(K, np.diag([0.0, 0.0, 1.0 / (L0 / EA + 2.0 * L0 / W)]), rtol=1e-12, atol=0)
+    # the inextensible fold: legs (L0 +- h)/2 give V = w (L0 + h)/2
+    r_stiff = cat.response(xi, xj, [L0], [1e15], [w])
+    assert_allclose(r_stiff.V, 0.5 * w * (L0 + h), rtol=1e-12)
+
+
+# ---------------------------------------------------------------------------
+# limits from the literature
+# ---------------------------------------------------------------------------
+
+def test_chord_stiffness_approaches_ernst_equivalent_modulus():
+    # source: Ernst 1965, Der Bauingenieur 40 (from memory):
+    #   E_eq = E / [1 + (gamma l)^2 E / (12 sigma^3)],
+    # gamma = weight per volume, l = horizontal projection, sigma = stress.
+    # For an inclined chord the sag is set by the chord-normal weight component
+    # w cos(a) over the chord length L_c; since l = L_c cos(a), (w cos(a) L_c)^2
+    # = (w l)^2, so the horizontal projection with the full weight is the same
+    # thing.  In forces: E_eq A = EA / [1 + (w l)^2 EA / (12 T^3)], T the
+    # tension along the chord (mean of the end tensions).
+    alpha = np.radians(30.0)
+    L0, w = 100.0, 100.0
+    W = w * L0
+    tautness = np.array([10.0, 30.0, 100.0, 300.0, 1000.0])
+    deviation = []
+    for tau in tautness:
+        T = tau * W
+        # EA chosen so that the sag term equals the elastic one (E_eq = E/2):
+        # the check is blind to neither part
+        EA = 12.0 * T**3 / (w * L0 * np.cos(alpha)) ** 2
+        H, V = T * np.cos(alpha), T * np.sin(alpha) + 0.5 * W
+        l, h = (float(x) for x in irvine_chord_mp(H, V, L0, w, EA))
+        xi, xj = place(l, h, 0.3)
+        r = cat.response(xi, xj, [L0], [EA], [w])
+        chord = np.hypot(l, h)
+        e = (xj - xi)[0] / chord
+        k_chord = e @ r.tangent[0, 3:, 3:] @ e
+        sigma_A = r.end_tension[0].mean()
+        ernst = EA / (1.0 + (w * l) ** 2 * EA / (12.0 * sigma_A**3)) / chord
+        assert 0.4 < ernst * chord / EA < 0.6
+        deviation.append(abs(k_chord / ernst - 1.0))
+    deviation = np.array(deviation)
+    # Ernst's formula is the leading term in the sag ratio ~ W/T; what it leaves
+    # out (sag ratio squared, and the strain ~ (W/T)^2 at fixed E_eq/E) falls
+    # off as (W/T)^2: fit the rate on log-log data
+    rate = np.polyfit(np.log(1.0 / tautness), np.log(deviation), 1)[0]
+    assert 1.8 < rate < 2.2
+    assert deviation[-1] < 1e-6
+
+
+def test_shallow_level_cable_parabolic_limit():
+    # source: common practice, parabolic cable H = w L^2/(8 d), support tension
+    # sqrt(H^2 + (w L/2)^2), length S = L [1 + 8/3 (d/L)^2 - 32/5 (d/L)^4]
+    # (derivations in Irvine 1981, Cable Structures, ch. 2)
+    span, w, EA = 100.0, 50.0, 1.0e12
+    sag_ratios = np.array([0.1, 0.05, 0.02, 0.01, 0.005])
+    h_dev, s_dev = [], []
+    for ratio in sag_ratios:
+        L0 = span * (1.0 + 8.0 / 3.0 * ratio**2 - 32.0 / 5.0 * ratio**4)
+        xi, xj = place(span, 0.0, 0.0)
+        r = cat.response(xi, xj, [L0], [EA], [w])
+        W = w * L0
+        sag = -cat.shape_points(xi, xj, [L0], [EA], [w], r.H, r.V, 3)[0, 1, 2]
+        # the load per horizontal length of the parabola is W / span
+        H_parabola = (W / span) * span**2 / (8.0 * sag)
+        h_dev.append(abs(r.H[0] / H_parabola - 1.0))
+        assert_allclose(r.end_tension[0], np.hypot(r.H[0], 0.5 * W), rtol=1e-12)
+        S = cat.stretched_length(r.H, r.V, [L0], [w], [EA])[0]
+        d = sag / span
+        s_dev.append(abs(S / (span * (1.0 + 8.0 / 3.0 * d**2 - 32.0 / 5.0 * d**4)) - 1.0))
+    # the catenary and the parabola agree to first order in d/L: H differs in
+    # (d/L)^2, and the lengths, equal through the (d/L)^2 term, in (d/L)^4
+    rate_H = np.polyfit(np.log(sag_ratios), np.log(h_dev), 1)[0]
+    rate_S = np.polyfit(np.log(sag_ratios), np.log(s_dev), 1)[0]
+    assert 1.9 < rate_H < 2.1
+    assert 3.8 < rate_S < 4.2
+    assert h_dev[-1] < 1e-4
+
+
+# ---------------------------------------------------------------------------
+# shape, tension along the cable, length
+# ---------------------------------------------------------------------------
+
+@pytest.mark.parametrize("H, V, w", [(800.0, 300.0, 12.0), (50.0, 900.0, 20.0), (3.0e4, 2.0e4, 12.0)])
+def test_shape_points_lie_on_irvine_profile(H, V, w):
+    # source: Irvine 1981, Cable Structures, §1.3, profile x(s), z(s) (from memory)
+    L0, EA, azimuth = 100.0, 4.0e8, -0.8
+    l, h = (float(x) for x in irvine_chord_mp(H, V, L0, w, EA))
+    xi, xj = place(l, h, azimuth, origin=(5.0, 1.0, -2.0))
+    pts = cat.shape_points(xi, xj, [L0], [EA], [w], [H], [V], 11)[0]
+    s = np.linspace(0.0, L0, 11)
+    ref = np.array([[float(v) for v in irvine_profile_mp(sk, H, V, L0, w, EA)] for sk in s])
+    e_h = np.array([np.cos(azimuth), np.sin(azimuth), 0.0])
+    expected = xi + ref[:, :1] * e_h + ref[:, 1:] * np.array([0.0, 0.0, 1.0])
+    # cancellation-free forms: a few ulp of the length
+    assert_allclose(pts, expected, rtol=0, atol=1e-13 * L0)
+    assert_allclose(pts[-1], xj[0], rtol=0, atol=1e-13 * L0)
+
+
+def test_divided_cable_matches_the_single_element():
+    # source: Irvine 1981, Cable Structures, §1.3: n elements with nodes on the
+    # exact profile at equal unstressed length carry the same H, the vertical
+    # force v(s) at their ends, and leave no out-of-balance at interior nodes
+    H, V, L0, w, EA, n = 900.0, 700.0, 120.0, 15.0, 2.0e8, 6
+    W = w * L0
+    s = np.linspace(0.0, L0, n + 1)
+    xz = np.array([[float(v) for v in irvine_profile_mp(sk, H, V, L0, w, EA)] for sk in s])
+    nodes = np.stack([xz[:, 0], np.zeros(n + 1), xz[:, 1]], axis=1)
+    parts = cat.response(nodes[:-1], nodes[1:], np.full(n, L0 / n), EA, w)
+    whole = cat.response(nodes[:1], nodes[-1:], [L0], [EA], [w])
+    # node coordinates carry 1 ulp; each short element amplifies it by ~1/strain
+    assert_allclose(parts.H, H, rtol=1e-8)
+    assert_allclose(parts.V, V - W + w * s[1:], rtol=1e-8, atol=1e-8 * H)
+    out_of_balance = parts.force[:-1, 3:] + parts.force[1:, :3]
+    assert_allclose(out_of_balance, 0.0, atol=1e-8 * H)
+    assert_allclose(parts.force[0, :3], whole.force[0, :3], rtol=1e-8, atol=1e-8 * H)
+    assert_allclose(parts.force[-1, 3:], whole.force[0, 3:], rtol=1e-8, atol=1e-8 * H)
+    pts = cat.shape_points(nodes[:1], nodes[-1:], [L0], [EA], [w], whole.H, whole.V, n + 1)[0]
+    assert_allclose(pts, nodes, rtol=0, atol=1e-12 * L0)
+
+
+@pytest.mark.parametrize("H, V, w", [(800.0, 300.0, 12.0), (50.0, 900.0, 20.0), (1.0e3, 400.0, 1e-7),
+                                     (1.0e3, 400.0, 0.0), (0.0, 1500.0, 10.0), (0.0, 700.0, 10.0)])
+def test_stretched_length_and_tension_along_the_cable(H, V, w):
+    # source: Irvine 1981, Cable Structures, §1.3: ds stretches to (1 + T/EA) ds,
+    # T(s) = sqrt(H^2 + (V - W + w s)^2); integrated by mpmath quadrature
+    L0, EA = 100.0, 1.0e5
+    m = [mp.mpf(x) for x in (H, V, L0, w, EA)]
+    tension = lambda s: mp.sqrt(m[0] ** 2 + (m[1] - m[3] * m[2] + m[3] * s) ** 2)
+    length = float(mp.quad(lambda s: 1 + tension(s) / m[4], [0, (m[2] - m[1] / m[3] if 0 < V < w * L0 else 0), m[2]]))
+    assert_allclose(cat.stretched_length([H], [V], [L0], [w], [EA]), length, rtol=1e-14)
+    s = np.array([[0.0, 13.0, 50.0, 100.0]])
+    expected = [[float(tension(mp.mpf(x))) for x in s[0]]]
+    assert_allclose(cat.tension_at(s, [H], [V], [L0], [w]), expected, rtol=1e-14)
+
+
+# ---------------------------------------------------------------------------
+# input errors
+# ---------------------------------------------------------------------------
+
+def test_bad_input_raises():
+    xi, xj = place(10.0, 0.0, 0.0)
+    with pytest.raises(ValueError, match="unstressed_length"):
+        cat.response(xi, xj, [0.0], [1e6], [1.0])
+    with pytest.raises(ValueError, match="weight"):
+        cat.response(xi, xj, [10.0], [1e6], [-1.0])
+    with pytest.raises(ValueError, match="EA"):
+        cat.response(xi, xj, [10.0], [-1e6], [1.0])
+    with pytest.raises(ValueError, match="shape"):
+        cat.response(xi[0], xj[0], [10.0], [1e6], [1.0])
+    with pytest.raises(ValueError, match="H must be"):
+        cat.catenary_chord([-1.0], [0.0], [10.0], [1.0], [1e6])
+    with pytest.raises(ValueError, match="undefined"):
+        cat.catenary_chord([0.0], [0.0], [10.0], [0.0], [1e6])
+    with pytest.raises(ValueError, match="lengths"):
+        cat.solve_end_forces([1.0, 2.0], [0.0, 0.0, 0.0], 10.0, 1.0, 1e6)
+    with pytest.raises(ValueError, match="guess"):
+        cat.response(xi, xj, [10.0], [1e6], [1.0], guess=(np.ones(3), np.ones(3)))
+    with pytest.raises(ValueError, match="l \\(horizontal"):
+        cat.solve_end_forces([-1.0], [0.0], [10.0], [1.0], [1e6])
