@@ -116,8 +116,13 @@ def cmd_solve(args, shape_first=False) -> int:
     out = Path(args.output)
     t0 = time.perf_counter()
 
+    live = sys.stderr.isatty()
+
     def progress(name, lam, it):
         log.info("%s: load factor %.3f (%d iterations)", name, lam, it)
+        if live:  # one updating line on a terminal; logs and pipes stay clean
+            print(f"\r  solving {name}: load factor {lam:.3f}, {it} iterations ",
+                  end="\n" if lam >= 1.0 else "", file=sys.stderr, flush=True)
 
     results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
     written = write_results(results, out)
