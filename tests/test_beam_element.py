@@ -627,7 +627,9 @@ def test_partial_uniform_load_matches_fixed_end_actions(a, frac, p):
     NB = quad(lambda x: x / L, a, b)[0]
     local = F0[0].T
     fi, mi, fj, mj = (local @ f[0:3], local @ f[3:6], local @ f[6:9], local @ f[9:12])
-    scale = np.abs(p).max() * L * (1 + L)
+    # loads below 1 N/m (hypothesis likes subnormal numbers) are held to the
+    # round-off of a 1 N/m load, not to a subnormal tolerance
+    scale = max(np.abs(p).max(), 1.0) * L * (1 + L)
     tol = dict(rtol=0, atol=1e-10 * scale)
     assert_allclose(fi, [pl[0] * NA, pl[1] * RA, pl[2] * RA], **tol)
     assert_allclose(fj, [pl[0] * NB, pl[1] * RB, pl[2] * RB], **tol)
