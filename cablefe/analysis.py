@@ -3,8 +3,10 @@ from __future__ import annotations
 
 import logging
 
+from .assembly import Assembler
 from .model import Model
 from .results import Results
+from .solve.linear import make_linear_solver
 from .solve.static import solve_combination
 
 log = logging.getLogger(__name__)
@@ -36,7 +38,13 @@ def solve(model: Model, names=None, progress=None, linear_solver: str | None = N
             raise ValueError(f"no result named {sorted(unknown)} (known: {', '.join(n for n, _ in todo)})")
         todo = tuple(t for t in todo if t[0] in wanted)
     items = []
+    # one pattern and one solver for all results: the pattern and the
+    # ordering / symbolic factorization are computed once per model
+    assembler = Assembler(model)
+    solver = make_linear_solver(linear_solver or model.spec.analysis.solver,
+                                symmetric=not model.has_rotations) if todo else None
     for name, factors in todo:
         cb = None if progress is None else (lambda lam, it, _n=name: progress(_n, lam, it))
-        items.append(solve_combination(model, name, factors, linear_solver=linear_solver, progress=cb))
+        items.append(solve_combination(model, name, factors, linear_solver=solver, progress=cb,
+                                       assembler=assembler))
     return Results(model, tuple(items))

@@ -19,7 +19,11 @@ EXAMPLES = {
     "check": "examples:\n  cablefe check cases/heavy_cable.toml",
     "solve": "examples:\n  cablefe solve cases/heavy_cable.toml -o out/heavy\n"
              "  cablefe solve cases/hanger_deck.toml -o out/deck --only crowd-left",
-    "run": "examples:\n  cablefe run cases/hanger_deck.toml -o out/deck",
+    "run": "examples:\n  cablefe run cases/hanger_deck.toml -o out/deck\n"
+           "  cablefe run cases/shaped_footbridge.toml -o out/footbridge   # shapes first",
+    "shape": "examples:\n  cablefe shape cases/shaped_footbridge.toml -o out/footbridge.toml\n"
+             "      writes out/footbridge.toml (the shaped case) and out/footbridge-cutting.csv\n"
+             "  cablefe solve out/footbridge.toml -o out/footbridge   # analyse the shaped case",
 }
 
 
@@ -43,6 +47,17 @@ def _parser() -> argparse.ArgumentParser:
                        epilog=EXAMPLES["check"], formatter_class=argparse.RawDescriptionHelpFormatter)
     c.add_argument("case", help="case file (TOML)")
 
+    text = ("form-finding by the case's [shape] table: write the shaped case (equilibrium coordinates "
+            "under the permanent loads, unstressed lengths) and its cutting table beside it")
+    f = sub.add_parser("shape", help="form-finding: write the shaped case and its cutting table",
+                       description=text, epilog=EXAMPLES["shape"],
+                       formatter_class=argparse.RawDescriptionHelpFormatter)
+    f.add_argument("case", help="case file (TOML) with a [shape] table")
+    f.add_argument("-o", "--output", required=True, metavar="SHAPED.toml",
+                   help="shaped case to write; the cutting table goes to SHAPED-cutting.csv beside it")
+    f.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
+                   help="sparse linear solver backend (default: [analysis] solver or auto)")
+
     for name, text in (("solve", "nonlinear static analysis of every combination"),
                        ("run", "everything the case asks for: shape (if [shape]), solve, further studies")):
         s = sub.add_parser(name, help=text, description=text, epilog=EXAMPLES[name],
@@ -53,6 +68,8 @@ def _parser() -> argparse.ArgumentParser:
                        help="solve only this combination (repeatable)")
         s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
                        help="sparse linear solver backend (default: [analysis] solver or auto)")
+    from .generate.command import add_parser as add_new_parser
+    add_new_parser(sub, _Parser)
     return p
 
 
@@ -108,12 +125,70 @@ def _summary(results) -> None:
         if len(mf.max_tension):
             print(f"    largest tension {_fmt(mf.max_tension[j] / u.force_scale, u.force)} in member "
                   f"{m.members[j].id}; slack members: {int(mf.slack.sum())}")
+        deck = results.deck_deflection(res.name)
+        if deck is not None:
+            L = u.length_scale
+            print(f"    largest deck deflection {abs(deck['vertical']) / L:.3f} {u.length} "
+                  f"({'down' if deck['vertical'] < 0 else 'up'}) at node {deck['node']}, "
+                  f"x = {deck['x'] / L:.1f} {u.length}")
+
+
+def _shape(case_path, shaped_path, solver=None) -> bool:
+    """Form-find ``case_path`` into ``shaped_path`` (+ cutting CSV); prints progress and targets.
+
+    Returns False (after a message on stderr) when the shape was not found.
+    """
+    from . import read_case
+    from .errors import CaseError
+    from .io.case_writer import write_shape_outputs
+    from .solve.formfind import ShapeError, find_shape
+    spec = read_case(case_path)
+    u = spec.units
+    t0 = time.perf_counter()
+    print(f"form-finding {case_path} ({spec.shape.method if spec.shape else 'no [shape] table'})")
+
+    def progress(it, worst):
+        print(f"  iteration {it}: largest target miss {_fmt(worst / u.length_scale, u.length)}", flush=True)
+
+    try:
+        found = find_shape(spec, linear_solver=solver, progress=progress)
+    except CaseError as exc:
+        raise exc if exc.file else exc.with_file(str(case_path)) from None
+    except ShapeError as exc:
+        print(f"cablefe: {case_path}: shape: {exc}", file=sys.stderr)
+        return False
+    header = (f"Shaped by cablefe {__version__} from {case_path}: node coordinates are the equilibrium\n"
+              "under the permanent loads; length0 are the unstressed lengths that give it.\n" + CAUTION)
+    written = write_shape_outputs(shaped_path, found.spec, found.cutting, header)
+    print(f"shape found in {time.perf_counter() - t0:.2f} s"
+          + (f", {found.iterations} iteration(s)" if found.targets else ""))
+    if found.targets:
+        print(f"  {'node':<12} {'axis':<4} {'target':>12} {'reached':>12} {'miss':>10}   ({u.length})")
+        for t in found.targets:
+            print(f"  {t.node:<12} {t.axis:<4} {t.target / u.length_scale:>12.6g} "
+                  f"{t.reached / u.length_scale:>12.6g} {t.miss / u.length_scale:>10.2e}")
+    print(f"  re-solved under the permanent loads it moves at most "
+          f"{_fmt(found.largest_movement / u.length_scale, u.length)}")
+    print(f"wrote {written[0]}, {written[1]}")
+    return True
+
+
+def cmd_shape(args) -> int:
+    ok = _shape(args.case, args.output, args.solver)
+    print("caution: " + CAUTION)
+    return 0 if ok else 1
 
 
 def cmd_solve(args, shape_first=False) -> int:
-    from . import load_model, solve, write_results
-    model = load_model(args.case)
+    from . import load_model, read_case, solve, write_results
     out = Path(args.output)
+    case = args.case
+    if shape_first and read_case(case).shape is not None:
+        case = out / "shaped.toml"
+        if not _shape(args.case, case, args.solver):
+            print("caution: " + CAUTION)
+            return 1
+    model = load_model(case)
     t0 = time.perf_counter()
 
     live = sys.stderr.isatty()
@@ -151,8 +226,17 @@ def main(argv=None) -> int:
             return cmd_check(args)
         if args.command == "solve":
             return cmd_solve(args)
+        if args.command == "shape":
+            return cmd_shape(args)
         if args.command == "run":
             return cmd_solve(args, shape_first=True)
+        if args.command == "new":
+            from .generate.command import run as cmd_new
+            try:
+                return cmd_new(args)
+            except ValueError as exc:  # a bad parameter: the message names the option
+                print(f"cablefe new {args.family}: {exc}", file=sys.stderr)
+                return 2
     except CaseError as exc:
         print(f"cablefe: {exc}", file=sys.stderr)
         return 2

@@ -80,24 +80,34 @@ class LoadVectors:
         element (catenary only), N per m of unstressed length
     strain : family -> (n,) stress-free strain (thermal), dimensionless
     prescribed : (ndof,) prescribed displacement/rotation of restrained DOFs
+    beam_loads : (n_beam, 12) or None, the part of ``nodal`` that comes from
+        member loads on each beam element (consistent nodal forces, N, and
+        moments, N m, global axes); results subtract it to get the section
+        forces at the element ends
     """
 
     nodal: np.ndarray
     weight: Mapping[str, np.ndarray]
     strain: Mapping[str, np.ndarray]
     prescribed: np.ndarray
+    beam_loads: np.ndarray | None = None
 
     def scaled(self, factor: float) -> "LoadVectors":
         return LoadVectors(self.nodal * factor,
                            {k: v * factor for k, v in self.weight.items()},
                            {k: v * factor for k, v in self.strain.items()},
-                           self.prescribed * factor)
+                           self.prescribed * factor,
+                           None if self.beam_loads is None else self.beam_loads * factor)
 
     def __add__(self, other: "LoadVectors") -> "LoadVectors":
+        if self.beam_loads is None or other.beam_loads is None:
+            beam_loads = self.beam_loads if other.beam_loads is None else other.beam_loads
+        else:
+            beam_loads = self.beam_loads + other.beam_loads
         return LoadVectors(self.nodal + other.nodal,
                            {k: self.weight[k] + other.weight[k] for k in self.weight},
                            {k: self.strain[k] + other.strain[k] for k in self.strain},
-                           self.prescribed + other.prescribed)
+                           self.prescribed + other.prescribed, beam_loads)
 
 
 @dataclass(frozen=True)
@@ -222,8 +232,13 @@ def build_model(spec: CaseSpec) -> Model:
                                                   "breaking_load": [], "E": [], "G": [], "A": [],
                                                   "Iy": [], "Iz": [], "J": [], "up": []}
                                               for f in FAMILIES}
-    members = []
+    # undivided bars and cables without a problem are done in one batch; the
+    # loop below does the rest (and raises the same errors as ever, in order)
+    straight = _straight_members(spec, index, coords)
+    infos: dict[int, tuple] = {}
     for m_idx, mem in enumerate(spec.members):
+        if straight["take"][m_idx]:
+            continue
         key = mem.key or f"members[{m_idx}]"
         sec, mat, weight = _section_data(spec, mem, key)
         a, b = mem.nodes
@@ -264,10 +279,17 @@ def build_model(spec: CaseSpec) -> Model:
         else:
             L0 = chord
         t = per_family[family]
+        if family == "beam":
+            # a beam is stress-free as drawn: each element's reference length is
+            # its own chord (given interior points need not be evenly spaced)
+            pts = np.array([coords[c] for c in chain], dtype=float)
+            pieces = np.linalg.norm(np.diff(pts, axis=0), axis=1)
+        else:
+            pieces = np.full(n, L0 / n)
         for k in range(n):
             t["nodes"].append((chain[k], chain[k + 1]))
             t["member"].append(m_idx)
-            t["L0"].append(L0 / n)
+            t["L0"].append(float(pieces[k]))
             t["EA"].append(EA)
             t["weight"].append(weight)
             t["alpha"].append(mat.alpha)
@@ -285,9 +307,8 @@ def build_model(spec: CaseSpec) -> Model:
                 t["Iz"].append(sec.Iz)
                 t["J"].append(sec.J)
                 t["up"].append(mem.up)
-        first = len(t["member"]) - n
-        members.append(MemberInfo(mem.id, mem.type, mem.section, family, first, n,
-                                  tuple(node_ids[c] for c in chain), key))
+        infos[m_idx] = (family, n, tuple(node_ids[c] for c in chain), key)
+    members = _merge_straight(spec, per_family, straight, infos)
 
     coordinates = np.array(coords, dtype=float).reshape(-1, 3)
     nn = len(node_ids)
@@ -295,11 +316,11 @@ def build_model(spec: CaseSpec) -> Model:
     # -- DOF numbering: rotations only where beams touch ---------------------
     rot = np.zeros(nn, dtype=bool)
     bt = per_family["beam"]["nodes"]
-    if bt:
+    if len(bt):
         rot[np.asarray(bt).ravel()] = True
     active = np.zeros(nn, dtype=bool)
     for f in FAMILIES:
-        if per_family[f]["nodes"]:
+        if len(per_family[f]["nodes"]):
             active[np.asarray(per_family[f]["nodes"]).ravel()] = True
     has = np.zeros((nn, 6), dtype=bool)
     has[:, :3] = True
@@ -351,7 +372,18 @@ def build_model(spec: CaseSpec) -> Model:
             try:
                 props["frame0"] = beam.local_frames(xi, xj, up) if len(nodes) else np.zeros((0, 3, 3))
             except ValueError as exc:
-                raise CaseError("members", f"beam up vector: {exc}") from None
+                if up is None:  # the default up is never parallel: a geometry problem
+                    raise CaseError("members", f"beam elements: {exc}") from None
+                # name the member: the element whose up vector is most nearly
+                # along its axis is the one the kernel refused
+                ex = (xj - xi) / np.linalg.norm(xj - xi, axis=1)[:, None]
+                un = up / np.linalg.norm(up, axis=1)[:, None]
+                e = int(np.argmin(np.linalg.norm(np.cross(ex, un), axis=1)))
+                mem = spec.members[int(t["member"][e])]
+                key = mem.key or f"members[{int(t['member'][e])}]"
+                raise CaseError(f"{key}.up", f"up = {[float(v) for v in up[e]]} of beam member \"{mem.id}\" "
+                                f"is parallel to its axis {ex[e].round(6).tolist()}; it must fix the "
+                                "direction of the local z axis, so choose a vector across the member") from None
         families[f] = ElementTable(f, nodes, np.asarray(t["member"], dtype=np.int64), dofs,
                                    MappingProxyType(props))
 
@@ -363,7 +395,145 @@ def build_model(spec: CaseSpec) -> Model:
     cases = _build_loads(spec, model)
     combos = tuple((c.name, MappingProxyType(dict(c.factors))) for c in spec.combinations)
     from dataclasses import replace
-    return replace(model, load_cases=MappingProxyType(cases), combinations=combos)
+    model = replace(model, load_cases=MappingProxyType(cases), combinations=combos)
+    report_deck_nodes(model)   # fail at build time, not after the analysis
+    return model
+
+
+def report_deck_nodes(model: Model) -> np.ndarray | None:
+    """Node indices named by ``[report] deck`` (extension), or None.
+
+    ``deck`` is a node id pattern or a list of them (shell-style, interior
+    nodes ``<member>.<k>`` included); the run reports the largest vertical
+    deflection among these nodes.
+
+    Raises
+    ------
+    CaseError
+        ``report.deck`` is not a list of strings or matches no node.
+    """
+    report = model.spec.extra.get("report")
+    if not isinstance(report, Mapping) or "deck" not in report:
+        return None
+    patterns = report["deck"]
+    if isinstance(patterns, str):
+        patterns = [patterns]
+    if not isinstance(patterns, (list, tuple)) or not patterns or \
+            not all(isinstance(p, str) for p in patterns):
+        raise CaseError("report.deck", f"expected a list of node id patterns such as [\"D*\"], "
+                        f"found {patterns!r}")
+    hit = [k for k, nid in enumerate(model.node_ids)
+           if any(p == nid or fnmatch.fnmatchcase(nid, p) for p in patterns)]
+    if not hit:
+        raise CaseError("report.deck", f"no node matches {list(patterns)}")
+    return np.asarray(hit, dtype=np.int64)
+
+
+_STRAIGHT_FIELDS = ("nodes", "member", "L0", "EA", "weight", "alpha", "tension_only", "breaking_load")
+
+
+def _straight_members(spec: CaseSpec, index: Mapping[str, int], coords: list) -> dict:
+    """Element data of the undivided bars and cables, in one batch.
+
+    Big models (cable nets) are mostly such members; a Python pass per
+    member costs ~15 us, the batch below ~1 us.  A member with any problem
+    (unknown section or node, zero length) is left to the loop of
+    :func:`build_model`, which raises the error for it in member order.
+
+    Returns
+    -------
+    dict
+        ``take`` (nm,) bool, the members done here; ``family`` -> dict of
+        arrays named as :data:`_STRAIGHT_FIELDS` (one element per member).
+    """
+    mems = spec.members
+    nm = len(mems)
+    take = np.zeros(nm, dtype=bool)
+    out = {"take": take}
+    cand = np.fromiter((m.divide == 1 and m.interior is None and m.type in ("bar", "cable")
+                        for m in mems), dtype=bool, count=nm)
+    sections = {}
+    for name in {m.section for m in mems}:
+        sec = spec.sections.get(name)
+        mat = None if sec is None else spec.materials.get(sec.material)
+        sections[name] = None if mat is None else (sec, mat, sec.weight if sec.weight is not None
+                                                   else sec.area * mat.unit_weight)
+    code_of = {name: k for k, name in enumerate(sections)}
+    table = [sections[name] for name in code_of]
+    ok_section = np.array([v is not None for v in table] + [False])
+    code = np.fromiter((code_of[m.section] for m in mems), dtype=np.int64, count=nm)
+    ia = np.fromiter((index.get(m.nodes[0], -1) for m in mems), dtype=np.int64, count=nm)
+    ib = np.fromiter((index.get(m.nodes[1], -1) for m in mems), dtype=np.int64, count=nm)
+    xyz = np.asarray(coords, dtype=float).reshape(-1, 3)
+    found = (ia >= 0) & (ib >= 0)
+    d = np.where(found[:, None], xyz[np.maximum(ib, 0)] - xyz[np.maximum(ia, 0)], 0.0)
+    chord = np.sqrt(np.einsum("ij,ij->i", d, d))
+    take[:] = cand & ok_section[code] & found & (chord > 0.0)
+    if not take.any():
+        return out
+
+    def column(values):
+        return np.array([np.nan if v is None else v for v in values], dtype=float)
+
+    def prop(fn):
+        return np.array([fn(*v) if v is not None else np.nan for v in table], dtype=float)
+
+    EA_s, w_s, alpha_s = prop(lambda s, m, w: m.E * s.area), prop(lambda s, m, w: w), prop(lambda s, m, w: m.alpha)
+    brk_s = prop(lambda s, m, w: np.nan if s.breaking_load is None else s.breaking_load)
+    for family in ("bar", "cable"):
+        rows = np.flatnonzero(take & np.fromiter((m.type == family for m in mems), dtype=bool, count=nm))
+        if not rows.size:
+            continue
+        picked = [mems[k] for k in rows]
+        c = code[rows]
+        EA = EA_s[c]
+        length0 = column([m.length0 for m in picked])
+        pretension = column([m.pretension for m in picked])
+        L0 = np.where(~np.isnan(length0), length0,
+                      np.where(~np.isnan(pretension), chord[rows] / (1.0 + pretension / EA), chord[rows]))
+        tension_only = (np.ones(rows.size, dtype=bool) if family == "cable"
+                        else np.fromiter((bool(m.tension_only) for m in picked), dtype=bool, count=rows.size))
+        out[family] = {"nodes": np.stack([ia[rows], ib[rows]], axis=1), "member": rows, "L0": L0,
+                       "EA": EA, "weight": w_s[c], "alpha": alpha_s[c], "tension_only": tension_only,
+                       "breaking_load": brk_s[c]}
+    return out
+
+
+def _merge_straight(spec: CaseSpec, per_family: dict, straight: dict, infos: dict) -> list:
+    """Put the batched elements among the looped ones in member order.
+
+    ``per_family`` is updated in place (lists become arrays); returns the
+    :class:`MemberInfo` of every member.
+    """
+    first = np.zeros(len(spec.members), dtype=np.int64)
+    for f in FAMILIES:
+        batch = straight.get(f)
+        if batch is None:
+            continue
+        t = per_family[f]
+        looped = len(t["member"])
+        for name in _STRAIGHT_FIELDS:
+            mine = np.asarray(t[name]).reshape((looped, 2) if name == "nodes" else (looped,))
+            t[name] = np.concatenate([mine.astype(batch[name].dtype), batch[name]])
+        order = np.argsort(t["member"], kind="stable")   # elements of a member stay in order
+        for name in _STRAIGHT_FIELDS:
+            t[name] = t[name][order]
+    for f in FAMILIES:
+        owner = np.asarray(per_family[f]["member"], dtype=np.int64)
+        if owner.size:
+            starts = np.flatnonzero(np.r_[True, owner[1:] != owner[:-1]])
+            first[owner[starts]] = starts
+    members = []
+    take = straight["take"]
+    for m_idx, mem in enumerate(spec.members):
+        if take[m_idx]:
+            members.append(MemberInfo(mem.id, mem.type, mem.section, mem.type, int(first[m_idx]), 1,
+                                      tuple(mem.nodes), mem.key or f"members[{m_idx}]"))
+        else:
+            family, n, chain, key = infos[m_idx]
+            members.append(MemberInfo(mem.id, mem.type, mem.section, family, int(first[m_idx]), n,
+                                      chain, key))
+    return members
 
 
 def _hanging_start(mem, xa, xb, weight, EA) -> np.ndarray | None:
@@ -416,8 +586,10 @@ def _hanging_start(mem, xa, xb, weight, EA) -> np.ndarray | None:
 
 
 def _default_up(xi, xj):
+    """The default documented in :func:`cablefe.elements.beam.local_frames`."""
+    from .elements.beam import VERTICAL_COSINE
     e = (xj - xi) / np.linalg.norm(xj - xi)
-    return np.array([1.0, 0.0, 0.0]) if abs(e[2]) > 0.999 else np.array([0.0, 0.0, 1.0])
+    return np.array([1.0, 0.0, 0.0]) if abs(e[2]) > VERTICAL_COSINE else np.array([0.0, 0.0, 1.0])
 
 
 # -- loads ----------------------------------------------------------------------
@@ -429,9 +601,10 @@ class _LoadBuilder:
         self.weight = {f: np.zeros(len(t)) for f, t in model.families.items()}
         self.strain = {f: np.zeros(len(t)) for f, t in model.families.items()}
         self.prescribed = np.zeros(model.ndof)
+        self.beam = np.zeros((len(model.families["beam"]), 12))
 
     def freeze(self) -> LoadVectors:
-        return LoadVectors(self.nodal, self.weight, self.strain, self.prescribed)
+        return LoadVectors(self.nodal, self.weight, self.strain, self.prescribed, self.beam)
 
     def add_point(self, node: int, force) -> None:
         g = self.model.dof[node, :3]
@@ -450,6 +623,7 @@ class _LoadBuilder:
             from .elements import beam
             fe = beam.equivalent_nodal_loads(xi, xj, t.props["frame0"][elems], length, p, a, b)
             np.add.at(self.nodal, t.dofs[elems], fe)
+            np.add.at(self.beam, elems, fe)
             return
         if family == "cable":
             # a downward load over the whole element is carried exactly by the

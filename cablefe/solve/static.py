@@ -36,12 +36,18 @@ class StaticProblem:
     """Residual/tangent pair of one combination for the Newton driver."""
 
     def __init__(self, model: Model, loads: LoadVectors, assembler: Assembler | None = None,
-                 linear_solver: str = "auto"):
+                 linear_solver: str | linear.LinearSolver = "auto"):
         self.model = model
         self.loads = loads
         self.assembler = assembler or Assembler(model)
+        self.assembler.forget()   # warm starts of another load path are no guess for this one
         self.free = self.assembler.free
-        self.solver = linear.make_linear_solver(linear_solver, symmetric=not model.has_rotations)
+        if isinstance(linear_solver, linear.LinearSolver):
+            # shared between the combinations of a model: the ordering and
+            # symbolic analysis of the (unchanged) pattern are reused
+            self.solver = linear_solver
+        else:
+            self.solver = linear.make_linear_solver(linear_solver, symmetric=not model.has_rotations)
         self._start = initial_state(model)
         self._r0 = self.assembler.evaluate(self._start, loads, 0.0, want_tangent=False).internal
         self._pres = np.flatnonzero(loads.prescribed != 0.0)
@@ -56,14 +62,18 @@ class StaticProblem:
         pos = state.positions.copy()
         rot = None if state.rotations is None else state.rotations.copy()
         dof = self.model.dof
+        spin = {}
         for g in self._pres:
             n, d = np.argwhere(dof == g)[0]
             if d < 3:
                 pos[n, d] = self.model.coordinates[n, d] + lam_to * self.loads.prescribed[g]
             else:
-                theta = np.zeros(3)
-                theta[d - 3] = (lam_to - lam_from) * self.loads.prescribed[g]
-                rot[n] = _expm_so3(theta[None])[0] @ rot[n]
+                spin.setdefault(n, np.zeros(3))[d - 3] = self.loads.prescribed[g]
+        # one rotation per node about the prescribed vector's fixed axis: the
+        # steps commute, so the total is expm(prescribed rotation vector)
+        # whatever the increments, also when several components are given
+        for n, theta in spin.items():
+            rot[n] = _expm_so3((lam_to - lam_from) * theta[None])[0] @ rot[n]
         return State(pos, rot)
 
     def out_of_balance(self, ev: Evaluation, lam: float) -> np.ndarray:
@@ -130,13 +140,19 @@ class StaticResult:
 
 
 def solve_combination(model: Model, name: str, factors: Mapping[str, float],
-                      settings: NewtonSettings | None = None, linear_solver: str | None = None,
-                      progress=None) -> StaticResult:
-    """Solve one combination of load cases nonlinearly from the model's geometry."""
+                      settings: NewtonSettings | None = None,
+                      linear_solver: str | linear.LinearSolver | None = None,
+                      progress=None, assembler: Assembler | None = None) -> StaticResult:
+    """Solve one combination of load cases nonlinearly from the model's geometry.
+
+    ``assembler`` and a :class:`~cablefe.solve.linear.LinearSolver` object
+    as ``linear_solver`` may be passed to share their per-pattern work
+    between the combinations of one model (see :func:`cablefe.analysis.solve`).
+    """
     a = model.spec.analysis
     settings = settings or NewtonSettings(a.increments, a.tolerance, a.max_iterations, a.max_cuts)
     loads = model.combined_loads(factors)
-    problem = StaticProblem(model, loads, linear_solver=linear_solver or a.solver)
+    problem = StaticProblem(model, loads, assembler=assembler, linear_solver=linear_solver or a.solver)
     outcome = follow_load_path(problem, settings, progress)
     lam = outcome.load_factor
     ev = problem.assembler.evaluate(outcome.state, loads, lam, want_tangent=False)
