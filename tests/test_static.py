@@ -208,3 +208,38 @@ def test_missing_support_is_reported_as_a_mechanism():
     assert not r.converged
     assert r.outcome.status == "mechanism"
     assert "B y" in r.outcome.message and "B z" in r.outcome.message
+
+
+def test_statically_determinate_support_movement_moves_rigidly():
+    # source: kinematics; a statically determinate structure follows a support
+    # movement as a rigid body with no force (any statics text, e.g.
+    # Hibbeler, Structural Analysis, ch. 2; common practice).  All forces are
+    # zero, so only the round-off floor of the convergence test can stop it.
+    d = (0.0123, 0.0071, 0.0)
+    spec = make_spec({"A": (0, 0, 0), "B": (6, 8, 0)},
+                     [Member("T", "bar", ("A", "B"), "s")],
+                     {"A": (True, True, True, False, False, False), "B": (False, True, True, False, False, False)},
+                     loads=[PrescribedDisplacement("move", "A", d)])
+    res = cablefe.solve(cablefe.build_model(spec))
+    assert res.all_converged
+    # B slides along x keeping the bar's length: (6 + u - dx)^2 + (8 - dy)^2 = 10^2
+    u = np.sqrt(100 - (8 - d[1]) ** 2) - 6 + d[0]
+    assert_allclose(res.node_displacement("move", "B"), [u, 0, 0], atol=1e-9)
+    assert_allclose(res.tension("move", "T"), [0.0, 0.0], atol=1e-3)
+
+
+def test_cantilever_follows_a_rotated_clamp_without_force():
+    # source: kinematics of a rigid rotation (common practice): a cantilever
+    # whose clamp turns by theta about z swings as a rigid body, tip at
+    # L (cos theta, sin theta, 0), with no internal force.
+    theta, L = 0.0137, 7.3
+    sec = {"s": Section("s", "steel", area=1.0e-2, Iy=2.0e-4, Iz=3.0e-4, J=1.0e-4)}
+    spec = make_spec({"A": (0, 0, 0), "B": (L, 0, 0)},
+                     [Member("G", "beam", ("A", "B"), "s", divide=4)],
+                     {"A": (True,) * 6},
+                     loads=[PrescribedDisplacement("turn", "A", (0.0, 0.0, 0.0), (0.0, 0.0, theta))],
+                     sections=sec)
+    res = cablefe.solve(cablefe.build_model(spec))
+    assert res.all_converged
+    assert_allclose(res.node_displacement("turn", "B"), [L * (np.cos(theta) - 1), L * np.sin(theta), 0],
+                    atol=1e-9)

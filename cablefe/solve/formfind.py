@@ -656,7 +656,7 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
     result = _equilibrium(model, factors, settings, linear_solver)
     X = result.state.positions
     best = np.inf
-    stalled = 0
+    stalled = shrinking = 0
 
     def reports():
         reached = X[t_nodes, t_axes]
@@ -674,7 +674,7 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
         if it == shape.max_iterations:
             _, msg = _unmet_message(spec, reports(), tol, f"no convergence in {shape.max_iterations} iterations")
             raise ShapeError(msg, [r for r in reports() if abs(r.miss) > tol])
-        if worst < 0.5 * best:
+        if worst < 0.9 * best:
             best, stalled = worst, 0
         elif worst > tol:
             stalled += 1
@@ -685,8 +685,7 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
         step = np.zeros(npar)
         if worst > tol:
             loads = model.combined_loads(factors)
-            J = _target_jacobian(model, result, loads, owner, {f: L0_start[f] for f in L0_start},
-                                 target_dofs, npar, linear_solver)
+            J = _target_jacobian(model, result, loads, owner, L0_start, target_dofs, npar, linear_solver)
             row = np.linalg.norm(J, axis=1)
             dead = (row <= 1e-12 * max(float(row.max(initial=0.0)), 1e-300)) & (np.abs(miss) > tol)
             if dead.any():
@@ -697,6 +696,14 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
             if rank < min(J.shape):
                 log.warning("shape: the sensitivity of the targets to the lengths has rank %d < %d; "
                             "some targets move together", rank, min(J.shape))
+            # a full step asking for a length <= 0 again and again means the
+            # targets need members that vanish
+            negative = theta + step <= 0.0
+            shrinking = shrinking + 1 if negative.any() else 0
+            if shrinking >= 3:
+                unmet, msg = _unmet_message(spec, reports(), tol, "they ask for an unstressed length <= 0 in "
+                                            + ", ".join(labels[k] for k in np.flatnonzero(negative)[:6]))
+                raise ShapeError(msg, unmet)
             # keep every length positive and the step inside the range where
             # the linearization is trusted: at most half of each factor
             ratio = float(np.max(np.abs(step) / theta, initial=0.0))
@@ -704,9 +711,6 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
                 step *= 0.5 / ratio
         for attempt in range(6):
             trial = theta + step
-            if np.any(trial <= 0.0):
-                raise ShapeError("the targets ask for an unstressed length <= 0 in "
-                                 + ", ".join(labels[k] for k in np.flatnonzero(trial <= 0.0)[:6]))
             try:
                 trial_model = build(X, trial)
                 trial_result = _equilibrium(trial_model, factors, settings, linear_solver)

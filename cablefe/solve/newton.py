@@ -18,13 +18,19 @@ The driver sees a *problem*: an object with
     ``K^-1 r``; raises :class:`cablefe.errors.MechanismError` when K is
     singular.
 
+The problem may also carry ``roundoff``: the force (N) below which its
+residual cannot be computed reliably (round-off of stiff members), 0 if
+absent.
+
 Convergence test (the only one): an increment has converged when
 
-    ||r||_2 <= tolerance * reference
+    ||r||_2 <= max(tolerance * reference, roundoff)
 
 with ``reference`` the problem's force scale (the larger of the applied load
-norm and the norm of the summed magnitudes of element forces at each DOF).  A
-non-finite residual is a failure, never a success.
+norm and the norm of the summed magnitudes of element forces at each DOF).
+The round-off floor lets a structure that only moves rigidly (all forces
+zero) or very stiff members under small loads converge instead of chasing
+noise.  A non-finite residual is a failure, never a success.
 """
 from __future__ import annotations
 
@@ -76,9 +82,9 @@ class PathOutcome:
     increments: tuple = ()
 
 
-def is_converged(residual_norm: float, reference: float, tolerance: float) -> bool:
-    """``||r|| <= tolerance * reference``; NaN or inf never converge."""
-    return bool(np.isfinite(residual_norm) and residual_norm <= tolerance * reference)
+def is_converged(residual_norm: float, reference: float, tolerance: float, roundoff: float = 0.0) -> bool:
+    """``||r|| <= max(tolerance * reference, roundoff)``; NaN or inf never converge."""
+    return bool(np.isfinite(residual_norm) and residual_norm <= max(tolerance * reference, roundoff))
 
 
 @dataclass
@@ -191,11 +197,12 @@ def newton_increment(problem, state, lam, settings: NewtonSettings) -> _Step:
     history = []
     r, ref, K = problem.evaluate(state, lam, True)
     ratio = _relative(r, ref)
+    roundoff = float(getattr(problem, "roundoff", 0.0))
     for it in range(settings.max_iterations + 1):
         history.append(ratio)
         if not math.isfinite(ratio):
             return _Step(state, False, it, ratio, "non-finite", history=history)
-        if is_converged(ratio, 1.0, settings.tolerance):
+        if is_converged(ratio * ref, ref, settings.tolerance, roundoff):
             return _Step(state, True, it, ratio, history=history)
         if it == settings.max_iterations:
             break

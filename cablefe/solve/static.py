@@ -51,6 +51,7 @@ class StaticProblem:
         self._start = initial_state(model)
         self._r0 = self.assembler.evaluate(self._start, loads, 0.0, want_tangent=False).internal
         self._pres = np.flatnonzero(loads.prescribed != 0.0)
+        self._roundoff = None
 
     # -- the problem interface -------------------------------------------------
     def initial_state(self) -> State:
@@ -79,6 +80,26 @@ class StaticProblem:
     def out_of_balance(self, ev: Evaluation, lam: float) -> np.ndarray:
         """f_int - λ f_ext - (1 - λ) f_int(u0; 0) over all DOFs."""
         return ev.internal - lam * self.loads.nodal - (1.0 - lam) * self._r0
+
+    @property
+    def roundoff(self) -> float:
+        """Force (N) below which the residual is round-off noise.
+
+        An axial force is computed as k (L - L0) with L of the size of the
+        model's coordinates, so its absolute error is about eps k x_max for
+        the stiffest element k; 64 such errors are allowed to accumulate at a
+        DOF.
+        """
+        if self._roundoff is None:
+            k = 0.0
+            for f, t in self.model.families.items():
+                if len(t):
+                    EA = t.props["EA"] if "EA" in t.props else t.props["E"] * t.props["A"]
+                    k = max(k, float(np.max(EA / t.props["unstressed_length"])))
+            extent = float(np.max(np.abs(self.model.coordinates))) if self.model.coordinates.size else 0.0
+            extent = max(extent, float(np.ptp(self.model.coordinates, axis=0).max()) if len(self.model.coordinates) else 0.0)
+            self._roundoff = 64.0 * np.finfo(float).eps * k * extent
+        return self._roundoff
 
     def evaluate(self, state: State, lam: float, want_tangent: bool = True):
         ev = self.assembler.evaluate(state, self.loads, lam, want_tangent)
