@@ -520,6 +520,12 @@ def catenary_chord(H, V, unstressed_length, weight, EA):
     -------
     l, h : (n,) horizontal projection and rise of the chord from A to B, m
     """
+    H, V, L0, weight, EA = _end_force_arrays(H, V, unstressed_length, weight, EA, "chord")
+    return _chord(H, V, L0, weight * L0, EA)
+
+
+def _end_force_arrays(H, V, unstressed_length, weight, EA, what):
+    """Validated (n,) arrays for the functions of given end forces."""
     n = _batch_size(H, V, unstressed_length, weight, EA)
     H, V = _vector("H", H, n), _vector("V", V, n)
     L0, weight, EA = (_vector("unstressed_length", unstressed_length, n), _vector("weight", weight, n),
@@ -528,8 +534,8 @@ def catenary_chord(H, V, unstressed_length, weight, EA):
     if np.any(H < 0.0):
         raise ValueError(f"H must be >= 0 N, got {H[H < 0.0][:3]}")
     if np.any((H == 0.0) & (V == 0.0) & (weight == 0.0)):
-        raise ValueError("the chord of an unloaded weightless cable (H = V = weight = 0) is undefined")
-    return _chord(H, V, L0, weight * L0, EA)
+        raise ValueError(f"the {what} of an unloaded weightless cable (H = V = weight = 0) is undefined")
+    return H, V, L0, weight, EA
 
 
 def catenary_flexibility(H, V, unstressed_length, weight, EA):
@@ -545,15 +551,7 @@ def catenary_flexibility(H, V, unstressed_length, weight, EA):
     ``H = 0`` with the cable folded (``0 <= V <= W``) ``dl/dH`` is ``inf``
     (no horizontal stiffness).
     """
-    n = _batch_size(H, V, unstressed_length, weight, EA)
-    H, V = _vector("H", H, n), _vector("V", V, n)
-    L0, weight, EA = (_vector("unstressed_length", unstressed_length, n), _vector("weight", weight, n),
-                      _vector("EA", EA, n))
-    _check_cable(L0, weight, EA)
-    if np.any(H < 0.0):
-        raise ValueError(f"H must be >= 0 N, got {H[H < 0.0][:3]}")
-    if np.any((H == 0.0) & (V == 0.0) & (weight == 0.0)):
-        raise ValueError("the flexibility of an unloaded weightless cable (H = V = weight = 0) is undefined")
+    H, V, L0, weight, EA = _end_force_arrays(H, V, unstressed_length, weight, EA, "flexibility")
     F_lH, F_lV, F_hV = _flexibility(H, V, L0, weight * L0, EA)
     return np.stack([np.stack([F_lH, F_lV], axis=-1), np.stack([F_lV, F_hV], axis=-1)], axis=-2)
 
