@@ -201,6 +201,10 @@ def cmd_solve(args, shape_first=False) -> int:
 
     results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
     written = write_results(results, out)
+    if shape_first:  # `run` adds plots and a report
+        from .io.report import write_report
+        note = f"Shaped first: `{case}` with its cutting table beside it." if case != args.case else ""
+        written += write_report(results, out, case, CAUTION, note)
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
     _summary(results)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
