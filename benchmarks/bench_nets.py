@@ -5,6 +5,7 @@ Run by hand (not a test)::
     python benchmarks/bench_nets.py                 # N = 50 100 200
     python benchmarks/bench_nets.py 50 100 --big    # adds 400 and 577
     python benchmarks/bench_nets.py 100 --no-dr     # skip the baseline
+    python benchmarks/bench_nets.py 100 200 --no-dr --solver superlu
 
 For each N a prestressed N x N net (``cases.saddle_net``, compact case form,
 written to a temporary folder) is measured in a fresh process: reading,
@@ -37,7 +38,7 @@ ROOT = HERE.parent
 RESULTS = HERE / "results"
 
 
-def worker(N: int, folder: str, dr: bool) -> dict:
+def worker(N: int, folder: str, dr: bool, backend: str = "auto") -> dict:
     sys.path[:0] = [str(ROOT), str(HERE)]
     from cases import saddle_net
     text, info = saddle_net(N)
@@ -59,7 +60,7 @@ def worker(N: int, folder: str, dr: bool) -> dict:
     loads = model.combined_loads({"snow": 1.0})
     state = initial_state(model)
     t = time.perf_counter(); ev = asm.evaluate(state, loads, 1.0); row["assemble_s"] = time.perf_counter() - t
-    solver = linear.make_linear_solver("auto")
+    solver = linear.make_linear_solver(backend)
     t = time.perf_counter(); fact = solver.factorize(ev.tangent); row["factor_s"] = time.perf_counter() - t
     row["backend"] = fact.backend
     t = time.perf_counter(); fact = solver.factorize(ev.tangent); row["refactor_s"] = time.perf_counter() - t
@@ -67,7 +68,7 @@ def worker(N: int, folder: str, dr: bool) -> dict:
     from scipy.sparse.linalg import splu
     t = time.perf_counter(); lu = splu(ev.tangent.tocsc()); row["splu_default_s"] = time.perf_counter() - t
     del lu
-    t = time.perf_counter(); res = cablefe.solve(model); row["solve_s"] = time.perf_counter() - t
+    t = time.perf_counter(); res = cablefe.solve(model, linear_solver=backend); row["solve_s"] = time.perf_counter() - t
     o = res.items[0].outcome
     row.update(converged=o.converged, iterations=o.iterations, residual=o.residual)
     out = Path(folder) / "out"
@@ -84,11 +85,12 @@ def worker(N: int, folder: str, dr: bool) -> dict:
     return row
 
 
-def cli_time(N: int, folder: str) -> float:
+def cli_time(N: int, folder: str, backend: str = "auto") -> float:
     """Wall time of the whole ``cablefe solve`` command, s."""
     case = Path(folder) / f"net{N}.toml"
     t = time.perf_counter()
-    subprocess.run([sys.executable, "-m", "cablefe", "solve", str(case), "-o", str(Path(folder) / "cli")],
+    subprocess.run([sys.executable, "-m", "cablefe", "solve", str(case), "-o", str(Path(folder) / "cli"),
+                    "--solver", backend],
                    check=True, capture_output=True, cwd=ROOT)
     return time.perf_counter() - t
 
@@ -119,21 +121,24 @@ def main(argv=None) -> None:
     p.add_argument("--big", action="store_true", help="add N = 400 and 577 (about 1e6 DOFs)")
     p.add_argument("--no-dr", action="store_true", help="skip the dynamic-relaxation baseline")
     p.add_argument("--dr-max", type=int, default=100, help="largest N for the baseline (default 100)")
-    p.add_argument("--worker", nargs=3, help=argparse.SUPPRESS)
+    p.add_argument("--solver", default="auto", choices=["auto", "superlu", "splu-default", "pardiso"],
+                   help="linear solver backend of the Newton solve and the command (default auto)")
+    p.add_argument("--worker", nargs=4, help=argparse.SUPPRESS)
     args = p.parse_args(argv)
     if args.worker:
         N, folder, dr = int(args.worker[0]), args.worker[1], args.worker[2] == "1"
-        print(json.dumps(worker(N, folder, dr)))
+        print(json.dumps(worker(N, folder, dr, args.worker[3])))
         return
     sizes = args.sizes + ([400, 577] if args.big else [])
     rows = []
     for N in sizes:
         with tempfile.TemporaryDirectory() as folder:
             dr = not args.no_dr and N <= args.dr_max
-            done = subprocess.run([sys.executable, __file__, "--worker", str(N), folder, "1" if dr else "0"],
+            done = subprocess.run([sys.executable, __file__, "--worker", str(N), folder, "1" if dr else "0",
+                                   args.solver],
                                   check=True, capture_output=True, text=True)
             row = json.loads(done.stdout.strip().splitlines()[-1])
-            row["cli_s"] = cli_time(N, folder)
+            row["cli_s"] = cli_time(N, folder, args.solver)
             rows.append(row)
             print(f"N={N}: {json.dumps({k: (round(v, 3) if isinstance(v, float) else v) for k, v in row.items()})}",
                   flush=True)

@@ -22,7 +22,9 @@ ROTATION_FAMILIES = ("beam",)
 @dataclass(frozen=True)
 class State:
     """Current configuration: node positions (nn, 3) in m and, where beams
-    exist, total nodal rotations (nn, 3, 3) (identity at the start)."""
+    exist, total nodal rotations (nn, 3, 3) from the beams' stress-free
+    orientation (at the start the model's ``initial_rotations``: identity
+    unless the case gives a ``[beam_reference]``)."""
 
     positions: np.ndarray
     rotations: np.ndarray | None = None
@@ -47,9 +49,11 @@ class Evaluation:
 
 
 def initial_state(model: Model) -> State:
+    """The state at ``model.coordinates`` with the model's starting nodal rotations."""
     rot = None
     if model.has_rotations:
-        rot = np.broadcast_to(np.eye(3), (len(model.node_ids), 3, 3)).copy()
+        rot = (model.initial_rotations.copy() if model.initial_rotations is not None
+               else np.broadcast_to(np.eye(3), (len(model.node_ids), 3, 3)).copy())
     return State(model.coordinates.copy(), rot)
 
 
@@ -157,8 +161,9 @@ class Assembler:
                 from .elements import beam
                 Ri = state.rotations[table.nodes[:, 0]]
                 Rj = state.rotations[table.nodes[:, 1]]
-                L = np.linalg.norm(model.coordinates[table.nodes[:, 1]] - model.coordinates[table.nodes[:, 0]], axis=1)
-                out[f] = beam.response(xi, xj, Ri, Rj, p["frame0"], L, p["E"], p["G"], p["A"],
+                # stress-free length from the reference geometry, not from
+                # the (possibly shaped, already bent) coordinates
+                out[f] = beam.response(xi, xj, Ri, Rj, p["frame0"], p["length"], p["E"], p["G"], p["A"],
                                        p["Iy"], p["Iz"], p["J"], axial_strain=strain,
                                        want_tangent=want_tangent)
         return out

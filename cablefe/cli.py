@@ -158,7 +158,9 @@ def _shape(case_path, shaped_path, solver=None) -> bool:
         print(f"cablefe: {case_path}: shape: {exc}", file=sys.stderr)
         return False
     header = (f"Shaped by cablefe {__version__} from {case_path}: node coordinates are the equilibrium\n"
-              "under the permanent loads; length0 are the unstressed lengths that give it.\n" + CAUTION)
+              "under the permanent loads; length0 are the unstressed lengths that give it.\n"
+              + ("[beam_reference] keeps the beams' stress-free geometry and their found rotations.\n"
+                 if found.spec.beam_reference else "") + CAUTION)
     written = write_shape_outputs(shaped_path, found.spec, found.cutting, header)
     print(f"shape found in {time.perf_counter() - t0:.2f} s"
           + (f", {found.iterations} iteration(s)" if found.targets else ""))

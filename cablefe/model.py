@@ -37,8 +37,10 @@ class ElementTable:
     props : mapping of name -> (n, ...) arrays.  bar/cable: ``EA`` (N),
         ``unstressed_length`` (m), ``weight`` (N/m of unstressed length),
         ``alpha`` (1/K), ``tension_only`` (bool), ``breaking_load`` (N, nan if
-        unknown).  beam additionally ``frame0`` (n, 3, 3), ``E``, ``G``, ``A``,
-        ``Iy``, ``Iz``, ``J``.
+        unknown).  beam additionally ``frame0`` (n, 3, 3), ``length`` (m, the
+        stress-free chord, equal to ``unstressed_length``), ``E``, ``G``,
+        ``A``, ``Iy``, ``Iz``, ``J``; ``frame0`` and ``length`` come from the
+        model's ``reference_coordinates``.
     """
 
     family: str
@@ -117,6 +119,13 @@ class Model:
     ``dof[n, d]`` is the global number of direction d (x y z rx ry rz) of
     node n, or -1 when the node has no such DOF (rotations exist only at
     nodes touched by beams).
+
+    ``reference_coordinates`` (nn, 3) m are the stress-free positions of the
+    beam nodes (``[beam_reference]``; equal to ``coordinates`` elsewhere),
+    from which the beams' frames, lengths and member loads are taken;
+    ``initial_rotations`` (nn, 3, 3) are the nodal rotations the analysis
+    starts from (identity where no reference rotation is given), None
+    without rotations.  Displacements are measured from ``coordinates``.
     """
 
     spec: CaseSpec
@@ -131,6 +140,8 @@ class Model:
     member_index: Mapping[str, int]
     load_cases: Mapping[str, LoadVectors]
     combinations: tuple[tuple[str, Mapping[str, float]], ...] = field(default=())
+    reference_coordinates: np.ndarray | None = None   # (nn, 3) m; None: ``coordinates``
+    initial_rotations: np.ndarray | None = None       # (nn, 3, 3); None: identity / no rotations
 
     @property
     def ndof(self) -> int:
@@ -225,6 +236,7 @@ def build_model(spec: CaseSpec) -> Model:
     node_ids = list(spec.nodes)
     coords = [tuple(spec.nodes[n]) for n in node_ids]
     index = {n: k for k, n in enumerate(node_ids)}
+    reference = spec.beam_reference
 
     # -- members and their elements -----------------------------------------
     per_family: dict[str, dict[str, list]] = {f: {"nodes": [], "member": [], "L0": [], "EA": [],
@@ -280,10 +292,14 @@ def build_model(spec: CaseSpec) -> Model:
             L0 = chord
         t = per_family[family]
         if family == "beam":
-            # a beam is stress-free as drawn: each element's reference length is
-            # its own chord (given interior points need not be evenly spaced)
-            pts = np.array([coords[c] for c in chain], dtype=float)
-            pieces = np.linalg.norm(np.diff(pts, axis=0), axis=1)
+            # a beam is stress-free as drawn (or at its [beam_reference]
+            # positions): each element's reference length is its own chord
+            # there (given interior points need not be evenly spaced)
+            pts = np.array([reference[node_ids[c]].position if node_ids[c] in reference else coords[c]
+                            for c in chain], dtype=float)
+            if (pieces := np.linalg.norm(np.diff(pts, axis=0), axis=1)).min() <= 0.0:
+                raise CaseError("beam_reference", f'beam member "{mem.id}": two consecutive nodes have the '
+                                "same stress-free position (zero-length element)")
         else:
             pieces = np.full(n, L0 / n)
         for k in range(n):
@@ -328,6 +344,7 @@ def build_model(spec: CaseSpec) -> Model:
     dof = -np.ones((nn, 6), dtype=np.int64)
     dof[has] = np.arange(int(has.sum()))
     ndof = int(has.sum())
+    reference_coordinates, initial_rotations = _beam_reference(spec, index, coordinates, rot)
 
     supported = np.zeros(ndof, dtype=bool)
     for nid, mask in spec.supports.items():
@@ -364,7 +381,8 @@ def build_model(spec: CaseSpec) -> Model:
             from .elements import beam
             for name in ("E", "G", "A", "Iy", "Iz", "J"):
                 props[name] = np.asarray(t[name], dtype=float)
-            xi, xj = coordinates[nodes[:, 0]], coordinates[nodes[:, 1]]
+            xi, xj = reference_coordinates[nodes[:, 0]], reference_coordinates[nodes[:, 1]]
+            props["length"] = np.linalg.norm(xj - xi, axis=1)
             ups = t["up"]
             up = None
             if any(u is not None for u in ups):
@@ -391,13 +409,43 @@ def build_model(spec: CaseSpec) -> Model:
                   coordinates=coordinates, dof=dof, restrained=restrained, supported=supported,
                   families=MappingProxyType(families), members=tuple(members),
                   member_index=MappingProxyType({m.id: k for k, m in enumerate(members)}),
-                  load_cases=MappingProxyType({}))
+                  load_cases=MappingProxyType({}), reference_coordinates=reference_coordinates,
+                  initial_rotations=initial_rotations)
     cases = _build_loads(spec, model)
     combos = tuple((c.name, MappingProxyType(dict(c.factors))) for c in spec.combinations)
     from dataclasses import replace
     model = replace(model, load_cases=MappingProxyType(cases), combinations=combos)
     report_deck_nodes(model)   # fail at build time, not after the analysis
     return model
+
+
+def _beam_reference(spec: CaseSpec, index: Mapping[str, int], coordinates: np.ndarray,
+                    rot: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    """Stress-free positions (nn, 3) m and starting rotations (nn, 3, 3) from ``[beam_reference]``.
+
+    ``rot`` (nn,) marks the nodes touched by beams; only they may have an
+    entry (the reader checks this too; a spec built in code is checked here).
+    The starting rotations are None when no node has rotations.
+    """
+    reference = coordinates.copy()
+    rotations = np.broadcast_to(np.eye(3), (len(coordinates), 3, 3)).copy() if rot.any() else None
+    if not spec.beam_reference:
+        return reference, rotations
+    names = list(spec.beam_reference)
+    for name in names:
+        ref = spec.beam_reference[name]
+        key = ref.key or f"beam_reference.{name}"
+        if name not in index:
+            raise CaseError(key, f'no node named "{name}"')
+        if not rot[index[name]]:
+            raise CaseError(key, f'node "{name}" is joined to no beam; a stress-free geometry is given '
+                            "for beam nodes only")
+    rows = np.fromiter((index[n] for n in names), dtype=np.int64, count=len(names))
+    reference[rows] = np.array([spec.beam_reference[n].position for n in names], dtype=float).reshape(-1, 3)
+    from .elements.beam import expm_so3
+    theta = np.array([spec.beam_reference[n].rotation for n in names], dtype=float).reshape(-1, 3)
+    rotations[rows] = expm_so3(theta)
+    return reference, rotations
 
 
 def report_deck_nodes(model: Model) -> np.ndarray | None:
@@ -612,11 +660,16 @@ class _LoadBuilder:
 
     def add_element_load(self, family: str, elems: np.ndarray, per_length: np.ndarray,
                          a: np.ndarray, b: np.ndarray) -> None:
-        """Uniform load per undeformed length on [a, b] of each element (m)."""
+        """Uniform load per undeformed length on [a, b] of each element (m).
+
+        Beams take the load on their stress-free geometry (the model's
+        ``reference_coordinates``), the geometry their frames come from.
+        """
         m = self.model
         t = m.families[family]
         nodes = t.nodes[elems]
-        xi, xj = m.coordinates[nodes[:, 0]], m.coordinates[nodes[:, 1]]
+        X = m.coordinates if family != "beam" or m.reference_coordinates is None else m.reference_coordinates
+        xi, xj = X[nodes[:, 0]], X[nodes[:, 1]]
         length = np.linalg.norm(xj - xi, axis=1)
         p = np.broadcast_to(per_length, (len(elems), 3)).astype(float)
         if family == "beam":
@@ -638,6 +691,15 @@ class _LoadBuilder:
         centre = 0.5 * (a + b) / length
         np.add.at(self.nodal, t.dofs[elems, :3], total * (1.0 - centre)[:, None])
         np.add.at(self.nodal, t.dofs[elems, 3:6], total * centre[:, None])
+
+
+def _element_lengths(model: Model, family: str, elems) -> np.ndarray:
+    """Undeformed chord (m) of elements: beams on their stress-free geometry, the rest as drawn."""
+    t = model.families[family]
+    if family == "beam":
+        return t.props["length"][elems]
+    X = model.coordinates
+    return np.linalg.norm(X[t.nodes[elems, 1]] - X[t.nodes[elems, 0]], axis=1)
 
 
 def _member_elements(model: Model, indices):
@@ -681,8 +743,7 @@ def _build_loads(spec: CaseSpec, model: Model) -> dict[str, LoadVectors]:
                 if f == "cable":
                     lb.weight[f] += w
                 else:
-                    nodes = t.nodes
-                    length = np.linalg.norm(model.coordinates[nodes[:, 1]] - model.coordinates[nodes[:, 0]], axis=1)
+                    length = _element_lengths(model, f, np.arange(len(t)))
                     # weight per unstressed length times L0 is the element's weight
                     W = w * t.props["unstressed_length"]
                     lb.add_element_load(f, np.arange(len(t)), np.stack([0 * W, 0 * W, -W / length], axis=1),
@@ -702,7 +763,7 @@ def _build_loads(spec: CaseSpec, model: Model) -> dict[str, LoadVectors]:
                 raise CaseError(f"{key}.members", f"no member matches {list(load.members)}")
             for f, elems in _member_elements(model, hit).items():
                 t = model.families[f]
-                length = np.linalg.norm(model.coordinates[t.nodes[elems, 1]] - model.coordinates[t.nodes[elems, 0]], axis=1)
+                length = _element_lengths(model, f, elems)
                 lb.add_element_load(f, elems, np.asarray(load.per_length, dtype=float),
                                     np.zeros(len(elems)), length)
         elif isinstance(load, PatchLoad):
@@ -755,9 +816,7 @@ def _add_patch(model: Model, lb: _LoadBuilder, load: PatchLoad, key: str) -> Non
         if chain is None:
             raise CaseError(f"{key}.path", f'nodes "{a}" and "{b}" are not joined by a member')
         for f, e, rev in chain:
-            t = model.families[f]
-            xi, xj = model.coordinates[t.nodes[e]]
-            length = float(np.linalg.norm(xj - xi))
+            length = float(_element_lengths(model, f, np.array([e]))[0])
             lo, hi = max(load.start, s), min(end, s + length)
             if hi > lo:
                 u0, u1 = lo - s, hi - s

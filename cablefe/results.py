@@ -186,7 +186,12 @@ class Results:
             if res.state.rotations is not None:
                 from .elements.beam import logm_so3
                 turning = np.flatnonzero(m.dof[:, 3] >= 0)
-                for k, theta in zip(turning, logm_so3(res.state.rotations[turning]).tolist()):
+                R = res.state.rotations[turning]
+                if m.initial_rotations is not None:
+                    # measured from the orientation in [nodes], as displacements
+                    # are from its positions: R R0^T (rotations compose on the left)
+                    R = np.einsum("nij,nkj->nik", R, m.initial_rotations[turning])
+                for k, theta in zip(turning, logm_so3(R).tolist()):
                     nodes[m.node_ids[k]]["rotation"] = theta
             mf = member_forces(m, res)
             members = {}

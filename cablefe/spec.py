@@ -74,6 +74,23 @@ class Member:
 
 
 @dataclass(frozen=True)
+class BeamReference:
+    """Stress-free geometry of a node touched by beams (extension, written by form-finding).
+
+    ``position`` (m) is where the node lies when the beams are stress-free;
+    ``rotation`` (rad) is the rotation vector that takes the stress-free
+    orientation of the node to its orientation in ``[nodes]``.  The beams'
+    reference frames and lengths come from ``position``; the analysis starts
+    with the nodal rotation ``expm(skew(rotation))``.
+    """
+
+    node: str
+    position: tuple[float, float, float]
+    rotation: tuple[float, float, float] = (0.0, 0.0, 0.0)
+    key: str = ""
+
+
+@dataclass(frozen=True)
 class SelfWeight:
     case: str
     key: str = ""
@@ -182,6 +199,8 @@ class CaseSpec:
     combinations: tuple[Combination, ...] = ()
     shape: ShapeSpec | None = None
     analysis: AnalysisSettings = AnalysisSettings()
+    # extension: node id -> stress-free geometry of beam nodes (``[beam_reference]``)
+    beam_reference: Mapping[str, BeamReference] = field(default_factory=dict)
     source: str | None = None          # path of the file read, if any
     raw: Mapping[str, Any] | None = None  # the parsed TOML, kept for faithful rewriting
     extra: Mapping[str, Any] = field(default_factory=dict)  # tables for later studies

@@ -2,13 +2,22 @@
 and the batched model building give the same arrays as the long form and
 the per-member loop, and the sparsity pattern is built once per model."""
 import json
+import math
+import subprocess
+import sys
+from pathlib import Path
 
 import numpy as np
+import pytest
+import tomli_w
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose, assert_array_equal
 
 import cablefe
 from cablefe.assembly import Assembler, _unique_inverse
 from cablefe.io.case import parse_case
+from cablefe.io import units
 from cablefe.io.results_io import dumps_readable
 from cablefe.model import build_model
 
@@ -120,3 +129,88 @@ def test_results_text_reads_back():
     assert np.isnan(back["results"]["snow"].pop("nan"))
     data["results"]["snow"].pop("nan")
     assert back == data
+
+
+# -- results.json text: orjson for the numbers, the json module's rules kept --
+
+_json_leaf = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True), st.integers(-2**63, 2**63 - 1), st.booleans(),
+    st.none(), st.text(alphabet="ab{}[]\",: null\\\n\u00e9", max_size=8))
+_json_value = st.recursive(
+    _json_leaf,
+    lambda inner: st.one_of(st.lists(inner, max_size=4),
+                            st.dictionaries(st.text(alphabet="xy{}\"", max_size=4), inner, max_size=4)),
+    max_leaves=30)
+
+
+def _same(a, b) -> bool:
+    """Equality where NaN equals NaN and 0.0 differs from -0.0 (exact round trip)."""
+    if isinstance(a, float) and isinstance(b, float):
+        return (math.isnan(a) and math.isnan(b)) or (a == b and math.copysign(1, a) == math.copysign(1, b))
+    if isinstance(a, dict) and isinstance(b, dict):
+        return list(a) == list(b) and all(_same(a[k], b[k]) for k in a)
+    if isinstance(a, list) and isinstance(b, list):
+        return len(a) == len(b) and all(_same(x, y) for x, y in zip(a, b))
+    return type(a) is type(b) and a == b
+
+
+@settings(max_examples=200, deadline=None)
+@given(data=st.dictionaries(st.text(max_size=3), _json_value, max_size=5),
+       table=st.lists(st.dictionaries(st.sampled_from(["position", "tension", "slack", "id"]),
+                                      _json_value, max_size=4), max_size=6))
+def test_results_text_is_what_the_json_module_reads_back(data, table):
+    # source: the Python json module (reference reader), RFC 8259 plus its
+    # NaN/Infinity extension; a table of tables exercises the batched path
+    data = dict(data, entries={f"E{k}": entry for k, entry in enumerate(table)})
+    text = dumps_readable(data)
+    assert _same(json.loads(text), data)
+    ref = json.loads(json.dumps(data, allow_nan=True))
+    assert _same(json.loads(text), ref)
+
+
+def test_each_node_and_member_on_one_line():
+    model = build_model(parse_case(_net(True)))
+    data = cablefe.solve(model, names=["snow"]).as_dict()
+    lines = dumps_readable(data).splitlines()
+    res = data["results"]["snow"]
+    for table in ("nodes", "members"):
+        for key, entry in res[table].items():
+            line = next(l for l in lines if l.lstrip().startswith(json.dumps(key) + ":"))
+            assert json.loads(line.split(":", 1)[1].rstrip(",")) == entry
+
+
+# -- units read without pint agree with pint ---------------------------------
+
+_FAST_TEXTS = sorted(units.FAST_UNITS) + [
+    "kN/m^3", "mm^2", "mm**4", "kN*m", "N/m", "kg/m**3", "1/K", "kN/m/m", "MPa*mm^2", "m^-2", "cm^3/km",
+    "t/m^3", "kN * m", "GPa/MPa"]
+
+
+@pytest.mark.parametrize("text", [t for t in _FAST_TEXTS if t != "1"])
+def test_fast_units_match_pint(text):
+    # source: pint (Grecco et al., pint unit definitions, default_en.txt) as the reference library
+    fast = units._fast_unit_info(text)
+    assert fast is not None
+    q = units.registry().parse_expression(text)
+    # pint multiplies prefix factors in floating point: a few roundings of 1.1e-16
+    assert_allclose(fast[0], q.to_base_units().magnitude, rtol=4 * np.finfo(float).eps, atol=0)
+    assert fast[1] == units._dimension_key(q.dimensionality)
+
+
+@pytest.mark.parametrize("text", ["ft", "kip", "kN m", "(kN)/m", "N/m**", "m^2^2", "mm2", "deg", "degC",
+                                  "kN//m", "*m", "m*"])
+def test_other_unit_text_goes_to_pint(text):
+    assert units._fast_unit_info(text) is None
+
+
+@pytest.mark.parametrize("length, loads_pint", [("mm", False), ("ft", True)])
+def test_pint_is_loaded_only_for_other_units(tmp_path, length, loads_pint):
+    case = _net(True)
+    case["units"] = {"length": length, "force": "kN"}
+    path = tmp_path / "net.toml"
+    path.write_text(tomli_w.dumps(case))
+    code = ("import sys; from cablefe.io.case import read_case; read_case(sys.argv[1]); "
+            "print('pint' in sys.modules)")
+    done = subprocess.run([sys.executable, "-c", code, str(path)], capture_output=True, text=True,
+                          check=True, cwd=Path(cablefe.__file__).parent.parent)
+    assert done.stdout.strip() == str(loads_pint)

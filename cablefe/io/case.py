@@ -40,6 +40,19 @@ Extensions to the interface page
     Coordinates of its ``divide - 1`` interior nodes (written by
     form-finding so that a shaped case reloads in its shape).  Without it the
     interior nodes lie evenly on the straight chord.
+``[beam_reference]``
+    Stress-free geometry of beams, written by form-finding so that a shaped
+    case with bending beams reloads with the bending it was found with::
+
+        [beam_reference]        # one entry per node touched by a beam
+        D3 = { position = [20.0, 0.0, 4.0], rotation = [0.0, -0.0012, 0.0] }
+
+    ``position`` (file length unit) is where the node lies when the beams are
+    stress-free; ``rotation`` (rad, default zero) is the rotation vector from
+    the stress-free orientation of the node to its orientation in
+    ``[nodes]``.  Beam frames and lengths come from the positions; the
+    analysis starts from ``[nodes]`` with these rotations, and displacements
+    are still measured from ``[nodes]``.
 ``[shape]``: ``fabrication_temperature`` (temperature difference of the
     fabrication state from the analysis state, K) and ``max_iterations``.
 ``[analysis]``: ``solver`` (one of :data:`SOLVERS`) and ``max_cuts``
@@ -83,6 +96,7 @@ from ..spec import (
     MEMBER_TYPES,
     AdjustGroup,
     AnalysisSettings,
+    BeamReference,
     CaseSpec,
     Combination,
     Material,
@@ -113,7 +127,8 @@ __all__ = [
 ]
 
 TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
-                  "loads", "combinations", "shape", "analysis", "node_table", "member_table")
+                  "loads", "combinations", "shape", "analysis", "node_table", "member_table",
+                  "beam_reference")
 PASS_THROUGH_KEYS = ("design", "studies", "modes", "report")
 MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha")
 SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J")
@@ -127,6 +142,7 @@ COMBINATION_KEYS = ("name", "factors")
 SHAPE_KEYS = ("method", "permanent", "tolerance", "targets", "adjust", "force_density",
               "fabrication_temperature", "max_iterations")
 ADJUST_KEYS = ("members", "together")
+BEAM_REFERENCE_KEYS = ("position", "rotation")
 ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts")
 SHAPE_METHODS = ("target", "force-density")
 SOLVERS = ("auto", "superlu", "splu-default", "pardiso")
@@ -432,6 +448,7 @@ class _Reader:
         combinations = self.combinations(data.get("combinations", []), cases)
         shape = self.shape(data["shape"], cases) if "shape" in data else None
         analysis = self.analysis(data.get("analysis", {}))
+        beam_reference = self.beam_reference(data.get("beam_reference", {}))
         extra = {}
         for name in PASS_THROUGH_KEYS:
             if name in data:
@@ -443,7 +460,7 @@ class _Reader:
         return CaseSpec(title=title, units=self.units, materials=materials, sections=sections,
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
-                        source=self.source, raw=data, extra=extra)
+                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:
@@ -1004,6 +1021,28 @@ class _Reader:
             max_iterations=(_integer(table["max_iterations"], "shape.max_iterations", 1)
                             if "max_iterations" in table else ShapeSpec.max_iterations),
         )
+
+    def beam_reference(self, value) -> dict[str, BeamReference]:
+        """``[beam_reference]``: stress-free position and rotation of beam nodes (m, rad)."""
+        out = {}
+        for name, entry in _table(value, "beam_reference", "a table of node ids").items():
+            key = key_join("beam_reference", name)
+            self.node(name, key)
+            if name not in self.rotation_nodes:
+                raise CaseError(key, f'node "{name}" is joined to no beam; a stress-free geometry is '
+                                "given for beam nodes only")
+            entry = _table(entry, key, "a table { position = [x, y, z], rotation = [rx, ry, rz] }")
+            _check_keys(entry, key, BEAM_REFERENCE_KEYS)
+            position = self.q.vector(_require(entry, "position", key, "the stress-free position [x, y, z]"),
+                                     "length", f"{key}.position")
+            rotation = (self.q.vector(entry["rotation"], "angle", f"{key}.rotation")
+                        if "rotation" in entry else (0.0, 0.0, 0.0))
+            for part, vector in (("position", position), ("rotation", rotation)):
+                bad = [k for k, v in enumerate(vector) if not math.isfinite(v)]
+                if bad:
+                    raise CaseError(f"{key}.{part}[{bad[0]}]", f"expected a finite number, found {vector[bad[0]]!r}")
+            out[name] = BeamReference(name, position, rotation, key)
+        return out
 
     def analysis(self, value) -> AnalysisSettings:
         table = _table(value, "analysis")

@@ -7,7 +7,11 @@ kinds of change, all in the file's own units:
 * ``length0`` on every cable and bar (``[[members]]`` and the arrays of
   ``[[member_table]]``), ``pretension`` removed;
 * ``interior = [[x, y, z], ...]`` on every divided member, so that its
-  interior nodes are read back in the found shape.
+  interior nodes are read back in the found shape;
+* ``[beam_reference]`` from ``CaseSpec.beam_reference`` (stress-free
+  position, file length unit, and rotation vector, rad, of every beam node),
+  so that beams reload with the bending they were found with; the table is
+  dropped when the spec has none.
 
 Everything else, ``[shape]`` included, is kept as it was read.
 """
@@ -79,6 +83,12 @@ def shaped_case_dict(spec: CaseSpec) -> dict:
             entry["length0"] = length(mem.length0)
         if mem.interior is not None:
             entry["interior"] = [point(p) for p in mem.interior]
+    if spec.beam_reference:
+        raw["beam_reference"] = {name: {"position": point(ref.position),
+                                        "rotation": [float(v) for v in ref.rotation]}
+                                 for name, ref in spec.beam_reference.items()}
+    else:
+        raw.pop("beam_reference", None)
     groups = raw.get("member_table", [])
     for entry in [groups] if isinstance(groups, dict) else groups:
         if entry.get("type") in ("cable", "bar"):

@@ -9,6 +9,7 @@ from xml.sax.saxutils import quoteattr
 
 import meshio
 import numpy as np
+import orjson
 
 from ..elements import catenary
 from ..results import Results, beam_section_forces, element_end_tensions
@@ -21,61 +22,118 @@ def write_json(results: Results, path, extra: dict | None = None) -> Path:
     data = results.as_dict()
     if extra:
         data.update(extra)
-    write_text(path, dumps_readable(data))
+    with atomic_path(path) as tmp:
+        tmp.write_bytes(_dumps_bytes(data))
     return Path(path)
-
-
-def _has_table(value) -> bool:
-    """True when ``value`` is, or has inside it, a dict."""
-    if isinstance(value, dict):
-        return True
-    return isinstance(value, list) and any(isinstance(v, (dict, list)) and _has_table(v) for v in value)
 
 
 def _holds_table(value) -> bool:
     """True when ``value`` has a dict inside it (is not a leaf entry)."""
     items = value.values() if isinstance(value, dict) else value if isinstance(value, list) else ()
-    return any(isinstance(v, (dict, list)) and _has_table(v) for v in items)
+    return any(isinstance(v, dict) or isinstance(v, list) and _holds_table(v) for v in items)
+
+
+_stdlib_encode = json.JSONEncoder(allow_nan=True, separators=(",", ":")).encode
+
+
+def _encode(value) -> bytes:
+    """One leaf entry as compact JSON bytes.
+
+    orjson writes the numbers (shortest text that reads back to the same
+    double) about 5 times faster than the json module, but writes NaN and
+    infinities as null and refuses types it does not know; such leaves, and
+    any leaf with a null (rare: a None or a non-finite number), are written by
+    the json module's C encoder instead, so the text is as
+    ``json.dumps(allow_nan=True)`` gives.
+    """
+    try:
+        text = orjson.dumps(value)
+    except (TypeError, orjson.JSONEncodeError):
+        return _stdlib_encode(value).encode()
+    if b"null" in text:
+        return _stdlib_encode(value).encode()
+    return text
+
+
+def _dumps_bytes(data, indent: int = 1) -> bytes:
+    parts: list[bytes] = []
+
+    def walk(value, depth):
+        pad = b" " * (indent * (depth + 1))
+        if isinstance(value, dict):
+            if not value:
+                parts.append(b"{}")
+                return
+            parts.append(b"{\n")
+            last = len(value) - 1
+            for k, (key, item) in enumerate(value.items()):
+                parts.append(pad + _encode(str(key)) + b": ")
+                put(item, depth + 1)
+                parts.append(b",\n" if k < last else b"\n")
+            parts.append(b" " * (indent * depth) + b"}")
+        else:
+            parts.append(b"[\n")
+            last = len(value) - 1
+            for k, item in enumerate(value):
+                parts.append(pad)
+                put(item, depth + 1)
+                parts.append(b",\n" if k < last else b"\n")
+            parts.append(b" " * (indent * depth) + b"]")
+
+    def flat_tables(value, vals, depth) -> bool:
+        # a table whose entries are all flat tables (the nodes, the
+        # members: 10^5 entries) in a few C-level passes; the per-entry
+        # Python work above would cost 10 times more than orjson itself
+        try:
+            texts = list(map(orjson.dumps, vals))
+        except (TypeError, orjson.JSONEncodeError):
+            return False
+        body = b"".join(texts)
+        # each entry is a dict, so has one "{" of its own; one more anywhere
+        # means a table inside (or a "{" in a string: the slow path decides)
+        if body.count(b"{") != len(vals) or b"null" in body:
+            return False
+        pad = b" " * (indent * (depth + 1))
+        keys = map(orjson.dumps, map(str, value))
+        parts.append(b"{\n" + b",\n".join(pad + k + b": " + t for k, t in zip(keys, texts))
+                     + b"\n" + b" " * (indent * depth) + b"}")
+        return True
+
+    def put(value, depth):
+        if isinstance(value, dict) and value:
+            vals = list(value.values())
+            if (set(map(type, vals)) == {dict}
+                    and not any(isinstance(v, dict) for v in vals[0].values())
+                    and not any(isinstance(v, dict) for v in vals[-1].values())
+                    and flat_tables(value, vals, depth)):
+                return
+        # a table of tables (the nodes, the members) is spread over lines
+        # without encoding it first; anything else is encoded, and spread
+        # only if the text shows it may hold a table: a "{" after the first
+        # byte ("{" also appears in strings, so then the exact test decides)
+        if isinstance(value, dict) and any(isinstance(v, dict) for v in value.values()):
+            walk(value, depth)
+            return
+        text = _encode(value)
+        if text.find(b"{", 1) >= 0 and _holds_table(value):
+            walk(value, depth)
+        else:
+            parts.append(text)
+
+    put(data, 0)
+    return b"".join(parts)
 
 
 def dumps_readable(data, indent: int = 1) -> str:
     """JSON text with tables spread over lines and each leaf entry on one line.
 
-    A leaf entry (a node's or a member's table of numbers and arrays) goes
-    on one line, written by the json module's C encoder; ``json.dumps`` with
-    ``indent`` runs the pure-Python encoder instead, about 10 times slower
-    (measured 3.2 s -> 0.3 s for a 200 x 200 net).  ``json.loads`` of the
-    text gives ``data`` back; NaN and infinities are written as in
+    A leaf entry (a node's or a member's table of numbers and arrays, with
+    no table inside) goes on one line, written by orjson (measured 0.94 ->
+    0.2 s for a 200 x 200 net); ``json.loads`` of the text gives ``data``
+    back, numbers exactly; NaN and infinities are written as in
     ``json.dumps(allow_nan=True)``.
     """
-    parts: list[str] = []
-    encode = json.JSONEncoder(allow_nan=True, separators=(", ", ": ")).encode
-
-    def walk(value, depth):
-        if not _holds_table(value):
-            parts.append(encode(value))
-            return
-        pad = " " * (indent * (depth + 1))
-        if isinstance(value, dict):
-            if not value:
-                parts.append("{}")
-                return
-            parts.append("{\n")
-            for k, (key, item) in enumerate(value.items()):
-                parts.append(pad + encode(str(key)) + ": ")
-                walk(item, depth + 1)
-                parts.append(",\n" if k < len(value) - 1 else "\n")
-            parts.append(" " * (indent * depth) + "}")
-        else:
-            parts.append("[\n")
-            for k, item in enumerate(value):
-                parts.append(pad)
-                walk(item, depth + 1)
-                parts.append(",\n" if k < len(value) - 1 else "\n")
-            parts.append(" " * (indent * depth) + "]")
-
-    walk(data, 0)
-    return "".join(parts)
+    return _dumps_bytes(data, indent).decode("utf-8")
 
 
 def safe_name(name: str) -> str:
@@ -175,7 +233,9 @@ def write_meshes(results: Results, folder, utilization: dict | None = None) -> l
         path = folder / f"{safe_name(name)}.vtu"
         mesh = result_mesh(results, name, utilization.get(name) if utilization else None)
         with atomic_path(path) as tmp:
-            meshio.write(tmp, mesh, file_format="vtu")
+            # base64 binary without zlib: 2x the bytes of the compressed
+            # default, written ~15x faster (200 x 200 net: 0.03 s vs 0.5 s)
+            meshio.write(tmp, mesh, file_format="vtu", compression=None)
         written.append(path)
         entries.append(f'    <DataSet timestep="{step}" part="0" name={quoteattr(name)} '
                        f'file={quoteattr(path.name)}/>')

@@ -34,7 +34,10 @@ absolute temperature and is refused rather than silently read as 248.15 K.
 
 Speed: pint needs about 0.1-0.2 ms to parse a unit, and a big model has tens
 of thousands of values, so bare numbers are converted with one float factor
-per kind and each distinct unit text is parsed once (cached).
+per kind and each distinct unit text is parsed once (cached).  Importing
+pint and building its registry costs about 0.4 s, so unit text made only of
+the common SI units in :data:`FAST_UNITS` (m, mm, kN, MPa, ... with powers,
+``*`` and ``/``) is read without pint; pint is loaded for anything else.
 """
 from __future__ import annotations
 
@@ -51,6 +54,7 @@ from ..spec import UnitSystem
 __all__ = [
     "STANDARD_GRAVITY",
     "KINDS",
+    "FAST_UNITS",
     "Kind",
     "Quantities",
     "registry",
@@ -115,23 +119,86 @@ KINDS: Mapping[str, Kind] = {k.name: k for k in _KIND_LIST} | {"modulus": _KIND_
 
 @functools.lru_cache(maxsize=1)
 def registry():
-    """The shared pint UnitRegistry, created on first use (~0.1 s)."""
+    """The shared pint UnitRegistry, created on first use.
+
+    Importing pint and building its registry takes about 0.4 s, most of a
+    small run; it happens only for unit text outside :data:`FAST_UNITS`.
+    """
     import pint
 
     return pint.UnitRegistry()
 
 
+#: Units read without pint: name -> (power of ten of the SI factor, SI
+#: dimensions).  Only units whose factor is an exact power of ten are here,
+#: so the factor ``float("1e<k>")`` is the correctly rounded value; the test
+#: suite checks every entry, and compounds of them, against pint itself.
+FAST_UNITS: Mapping[str, tuple[int, Mapping[str, int]]] = {
+    "m": (0, {"[length]": 1}), "mm": (-3, {"[length]": 1}),
+    "cm": (-2, {"[length]": 1}), "km": (3, {"[length]": 1}),
+    "N": (0, {"[length]": 1, "[mass]": 1, "[time]": -2}),
+    "kN": (3, {"[length]": 1, "[mass]": 1, "[time]": -2}),
+    "MN": (6, {"[length]": 1, "[mass]": 1, "[time]": -2}),
+    "Pa": (0, {"[length]": -1, "[mass]": 1, "[time]": -2}),
+    "kPa": (3, {"[length]": -1, "[mass]": 1, "[time]": -2}),
+    "MPa": (6, {"[length]": -1, "[mass]": 1, "[time]": -2}),
+    "GPa": (9, {"[length]": -1, "[mass]": 1, "[time]": -2}),
+    "kg": (0, {"[mass]": 1}), "t": (3, {"[mass]": 1}),
+    "s": (0, {"[time]": 1}), "K": (0, {"[temperature]": 1}),
+    "rad": (0, {}), "1": (0, {}),
+}
+
+# one factor of a product: a unit name (or 1) and an optional integer power;
+# factors are joined by * or /, evaluated left to right as pint does
+_FAST_FACTOR = re.compile(r"\s*([A-Za-z]+|1)\s*(?:(?:\^|\*\*)\s*([+-]?\d+))?\s*")
+
+
+def _fast_unit_info(text: str) -> tuple[float, tuple] | None:
+    """SI factor and dimensions of ``text`` built only from :data:`FAST_UNITS`.
+
+    Returns None for anything else (other units, spaces as products,
+    parentheses ...), which then goes to pint.
+    """
+    power, dims, op, pos = 0, {}, 1, 0
+    while True:
+        match = _FAST_FACTOR.match(text, pos)
+        if match is None or match.group(1) not in FAST_UNITS:
+            return None
+        k, unit_dims = FAST_UNITS[match.group(1)]
+        exponent = op * (int(match.group(2)) if match.group(2) else 1)
+        power += k * exponent
+        for name, e in unit_dims.items():
+            dims[name] = dims.get(name, 0) + e * exponent
+        pos = match.end()
+        if pos == len(text):
+            break
+        if text[pos] not in "*/" or text.startswith("**", pos):
+            return None
+        op = 1 if text[pos] == "*" else -1
+        pos += 1
+    return float(f"1e{power}"), tuple(sorted((n, e) for n, e in dims.items() if e))
+
+
+def _dimension_key(dimensionality) -> tuple:
+    """A pint dimensionality as a sorted tuple of (dimension, exponent)."""
+    return tuple(sorted((str(n), e) for n, e in dict(dimensionality).items() if e))
+
+
 @functools.lru_cache(maxsize=None)
-def _kind_dimensionality(name: str):
-    return registry().Quantity(1.0, KINDS[name].si).dimensionality
+def _kind_dimensionality(name: str) -> tuple:
+    """Dimensions of a kind as a sorted tuple of (``"[length]"``, exponent)."""
+    if name == "dimensionless":
+        return ()
+    return _unit_info(KINDS[name].si)[1]
 
 
-def _dimension_words(dimensionality) -> str:
-    """Name a pint dimensionality in words when it is one of our kinds."""
+def _dimension_words(dimensionality: tuple) -> str:
+    """Name dimensions in words when they are one of our kinds."""
     for kind in _KIND_LIST:
         if _kind_dimensionality(kind.name) == dimensionality:
             return kind.words
-    return f"of dimension {dimensionality}"
+    text = " * ".join(n if e == 1 else f"{n} ** {e}" for n, e in dimensionality)
+    return f"of dimension {text or 'dimensionless'}"
 
 
 # a leading number (TOML-like float syntax, plus inf/nan so that they can be
@@ -148,20 +215,25 @@ class _UnitTextError(ValueError):
 
 
 @functools.lru_cache(maxsize=4096)
-def _unit_info(text: str) -> tuple[float, Any]:
-    """SI factor and pint dimensionality of a unit text such as ``"kN/m^3"``.
+def _unit_info(text: str) -> tuple[float, tuple]:
+    """SI factor and dimensions of a unit text such as ``"kN/m^3"``.
 
-    Cached: each distinct unit text is parsed by pint once.
+    Text made only of :data:`FAST_UNITS` is read without pint; anything else
+    is parsed by pint, once per distinct text (cached).  The dimensions are a
+    sorted tuple of (``"[length]"``, exponent) pairs.
 
     Raises
     ------
     _UnitTextError
         Unknown unit, unreadable text or an offset unit (``degC``).
     """
-    import pint
-
     if not _HAS_UNIT_SYMBOL.search(text):
         raise _UnitTextError(f'"{text}" is not a unit')
+    fast = _fast_unit_info(text)
+    if fast is not None:
+        return fast
+    import pint
+
     ureg = registry()
     try:
         quantity = ureg.parse_expression(text)
@@ -190,7 +262,7 @@ def _unit_info(text: str) -> tuple[float, Any]:
         )
     # base units of pint's default registry (m, kg, s, K, rad -> 1) are the
     # SI units of every kind in KINDS, so the base magnitude is the SI value
-    return factor, quantity.dimensionality
+    return factor, _dimension_key(quantity.dimensionality)
 
 
 def describe_value(value: Any) -> str:

@@ -35,9 +35,11 @@ the found geometry -- is solved under the permanent loads from its own
 coordinates, and the coordinates are moved to that equilibrium until the
 solve no longer moves them (``settle``).  The written case therefore stays
 put when it is solved again.  Beams keep the stress-free shape of ``[nodes]``
-while shaping; the case file has no separate stress-free geometry for beams,
-so a shaped case with beams that bend under the permanent load is stress-free
-in the found shape when it is read again (a warning says so).
+(or of the case's ``[beam_reference]``) while shaping; the shaped case gets a
+``[beam_reference]`` table with that stress-free position of every beam node
+and the rotation vector from its stress-free orientation to the found one, so
+that the reloaded beams carry exactly the bending of the found state and the
+shaped case stays put too.
 
 All quantities SI (N, m, N/m).
 """
@@ -55,7 +57,7 @@ from ..assembly import Assembler, State
 from ..elements import catenary
 from ..errors import CaseError, MechanismError
 from ..model import LoadVectors, Model, build_model, match_members
-from ..spec import CaseSpec, ShapeSpec
+from ..spec import BeamReference, CaseSpec, ShapeSpec
 from . import linear
 from .newton import NewtonSettings
 from .static import StaticResult, solve_combination
@@ -195,7 +197,7 @@ def model_size(model: Model) -> float:
     return max(float(np.linalg.norm(np.ptp(c, axis=0))) if len(c) else 0.0, 1e-12)
 
 
-def shaped_case(spec: CaseSpec, model: Model, coordinates, member_length0) -> CaseSpec:
+def shaped_case(spec: CaseSpec, model: Model, coordinates, member_length0, rotations=None) -> CaseSpec:
     """The case with found node coordinates and member unstressed lengths.
 
     Parameters
@@ -206,14 +208,33 @@ def shaped_case(spec: CaseSpec, model: Model, coordinates, member_length0) -> Ca
         the case's geometry.  Supported directions keep the case's
         coordinates (a prescribed support movement stays a load).
     member_length0 : (nm,) unstressed length per member, m (NaN: unchanged)
+    rotations : (nn, 3, 3) total nodal rotations of the found state (from
+        the beams' stress-free orientation, as in
+        :class:`cablefe.assembly.State`), or None.  Required when
+        coordinates are given and the model has beams.
 
     Returns
     -------
     CaseSpec
         ``length0`` on every cable and bar (``pretension`` removed),
-        ``interior`` on every divided member when coordinates are given.
+        ``interior`` on every divided member when coordinates are given,
+        and then, with beams, ``beam_reference`` for every beam node: the
+        stress-free position of ``model`` and the rotation vector of
+        ``rotations``.
+
+    Raises
+    ------
+    ValueError
+        Coordinates given for a model with beams without their rotations:
+        the beams would reload stress-free in the found shape.
     """
     member_length0 = np.asarray(member_length0, dtype=float)
+    beam_reference = spec.beam_reference
+    if coordinates is not None and _has_beams(model):
+        if rotations is None:
+            raise ValueError("shaped_case: a model with beams needs the found nodal rotations to keep the "
+                             "beams' stress-free geometry")
+        beam_reference = _beam_reference_table(spec, model, np.asarray(rotations, dtype=float))
     nodes = dict(spec.nodes)
     X = None
     if coordinates is not None:
@@ -234,7 +255,27 @@ def shaped_case(spec: CaseSpec, model: Model, coordinates, member_length0) -> Ca
             changes["interior"] = tuple(tuple(float(v) for v in X[model.node_index[n]])
                                         for n in info.node_ids[1:-1])
         members.append(replace(mem, **changes) if changes else mem)
-    return replace(spec, nodes=nodes, members=tuple(members))
+    return replace(spec, nodes=nodes, members=tuple(members), beam_reference=beam_reference)
+
+
+def _beam_reference_table(spec: CaseSpec, model: Model, rotations: np.ndarray) -> dict:
+    """``[beam_reference]`` entries of every beam node: stress-free position (m) and rotation vector (rad).
+
+    The positions are the model's own stress-free ones (``[nodes]``, or the
+    case's earlier ``[beam_reference]``); ``rotations`` are totals from that
+    stress-free orientation, so they are written as they are.
+    """
+    from ..elements.beam import logm_so3
+    turning = np.flatnonzero(model.dof[:, 3] >= 0)
+    theta = logm_so3(rotations[turning])
+    ref = model.reference_coordinates if model.reference_coordinates is not None else model.coordinates
+    out = {}
+    for k, n in enumerate(turning.tolist()):
+        name = model.node_ids[n]
+        old = spec.beam_reference.get(name)
+        out[name] = BeamReference(name, tuple(float(v) for v in ref[n]), tuple(float(v) for v in theta[k]),
+                                  old.key if old is not None else f"beam_reference.{name}")
+    return out
 
 
 def _settings(spec: CaseSpec) -> NewtonSettings:
@@ -834,16 +875,13 @@ def find_shape(spec: CaseSpec, linear_solver: str | None = None,
                                                                   linear_solver, progress)
     else:
         raise CaseError("shape.method", f'unknown form-finding method "{shape.method}" (known: target, force-density)')
-    shaped = shaped_case(spec, model0, X, L0)
+    shaped = shaped_case(spec, model0, X, L0, result.state.rotations)
     final = build_model(shaped)
     check = _equilibrium(final, factors, settings, linear_solver)
     movement = _movement(final, check)
-    if _has_beams(final):
-        log.warning("shape: the case file keeps no separate stress-free geometry for beams; read again, "
-                    "the beams are stress-free in the found shape (re-solved, it moves up to %.3g m)", movement)
-        table_model, table_result = model, result
-    else:
-        table_model, table_result = final, check
+    if movement > 1e-6 * model_size(final):
+        log.warning("shape: the shaped case re-solved under the permanent loads moves up to %.3g m", movement)
+    table_model, table_result = final, check
     cutting = cutting_table(table_model, table_result, table_model.combined_loads(factors),
                             shape.fabrication_temperature)
     return ShapeResult(shaped, final, table_result, np.asarray(L0, dtype=float), reports, iterations,
