@@ -22,12 +22,27 @@ def _elevation_axes(coords: np.ndarray) -> tuple[int, str]:
     return (0, "x") if span[0] >= span[1] else (1, "y")
 
 
-def plot_result(results, name: str, path) -> Path:
-    """Elevation of the undeformed and deformed structure, displacements magnified."""
+def _pyplot():
+    """matplotlib's pyplot on the Agg backend (no screen needed)."""
     import matplotlib
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    return plt
+
+
+def _save(fig, path) -> Path:
+    """Write a figure atomically as PNG and free it."""
+    path = Path(path)
+    with atomic_path(path) as tmp:
+        fig.savefig(tmp, format="png")
+    _pyplot().close(fig)
+    return path
+
+
+def plot_result(results, name: str, path) -> Path:
+    """Elevation of the undeformed and deformed structure, displacements magnified."""
     from matplotlib.collections import LineCollection
+    plt = _pyplot()
 
     m = results.model
     u = m.spec.units
@@ -62,18 +77,12 @@ def plot_result(results, name: str, path) -> Path:
     ax.set_title(f"{name}: deformed shape, displacements × {scale:g} ({state})")
     ax.grid(True, alpha=0.3)
     fig.tight_layout()
-    path = Path(path)
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format="png")
-    plt.close(fig)
-    return path
+    return _save(fig, path)
 
 
 def plot_tension_envelope(results, path) -> Path:
     """Largest and smallest tension of every member over all results."""
-    import matplotlib
-    matplotlib.use("Agg")
-    import matplotlib.pyplot as plt
+    plt = _pyplot()
 
     m = results.model
     F = m.spec.units.force_scale
@@ -90,11 +99,7 @@ def plot_tension_envelope(results, path) -> Path:
     ax.set_title("tension envelope over all results (bar: smallest to largest)")
     ax.grid(True, axis="y", alpha=0.3)
     fig.tight_layout()
-    path = Path(path)
-    with atomic_path(path) as tmp:
-        fig.savefig(tmp, format="png")
-    plt.close(fig)
-    return path
+    return _save(fig, path)
 
 
 def _envelope(results):
