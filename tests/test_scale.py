@@ -18,7 +18,7 @@ import cablefe
 from cablefe.assembly import Assembler, _unique_inverse
 from cablefe.io.case import parse_case
 from cablefe.io import units
-from cablefe.io.results_io import dumps_readable
+from cablefe.io.results_io import dumps_readable, write_json
 from cablefe.model import build_model
 
 N = 10
@@ -214,3 +214,15 @@ def test_pint_is_loaded_only_for_other_units(tmp_path, length, loads_pint):
     done = subprocess.run([sys.executable, "-c", code, str(path)], capture_output=True, text=True,
                           check=True, cwd=Path(cablefe.__file__).parent.parent)
     assert done.stdout.strip() == str(loads_pint)
+
+
+@pytest.mark.parametrize("case", ["net", "heavy_cable.toml", "hanger_deck.toml", "stiffened_footbridge.toml"])
+def test_results_file_is_the_text_of_the_results_dict(tmp_path, case):
+    """write_json lays out node and member tables from whole arrays (beams:
+    from the dict); the file must be exactly the dict's readable text."""
+    root = Path(cablefe.__file__).parent.parent
+    model = (build_model(parse_case(_net(True))) if case == "net"
+             else cablefe.load_model(root / "cases" / case))
+    results = cablefe.solve(model)
+    write_json(results, tmp_path / "results.json")
+    assert (tmp_path / "results.json").read_text(encoding="utf-8") == dumps_readable(results.as_dict())

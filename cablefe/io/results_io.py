@@ -12,19 +12,108 @@ import numpy as np
 import orjson
 
 from ..elements import catenary
-from ..results import Results, beam_section_forces, element_end_tensions
+from ..results import Results, beam_section_forces, element_end_tensions, member_forces
 from .atomic import atomic_path, write_text
 
 CURVE_POINTS = 9   # points drawn along each catenary element (ends included)
 
 
 def write_json(results: Results, path, extra: dict | None = None) -> Path:
-    data = results.as_dict()
+    data = _text_tables(results)
+    if data is None:
+        data = results.as_dict()
     if extra:
         data.update(extra)
     with atomic_path(path) as tmp:
         tmp.write_bytes(_dumps_bytes(data))
     return Path(path)
+
+
+class _Text(bytes):
+    """JSON text already laid out, put into the file as it is."""
+
+
+def _rows(values) -> list[bytes] | None:
+    """Each row of a float array as JSON text without brackets (``b"1.0,2.5"``).
+
+    One orjson call for the whole array, split at the row brackets (numbers
+    hold no brackets); None when a value is not finite (orjson writes it as
+    null: the dict path then writes it as the json module does).
+    """
+    a = np.ascontiguousarray(values, dtype=np.float64)
+    if a.size == 0:
+        return [b""] * len(a)
+    text = orjson.dumps(a, option=orjson.OPT_SERIALIZE_NUMPY)
+    if b"null" in text:
+        return None
+    return text[1:-1].split(b",") if a.ndim == 1 else text[2:-2].split(b"],[")
+
+
+def _text_tables(results: Results) -> dict | None:
+    """``results.as_dict()`` with the node and member tables as laid-out text.
+
+    Same content and layout (``dumps_readable``), without a Python float
+    and a dict per node and member: 0.7 -> 0.15 s for a 200 x 200 net.
+    Models with beams, a ``[report] deck`` or a non-finite value give None;
+    they take the dict path.
+    """
+    m = results.model
+    if any(len(t) for f, t in m.families.items() if f == "beam") or any(
+            r.state.rotations is not None for r in results.items):
+        return None
+    u = m.spec.units
+    L, F = u.length_scale, u.force_scale
+    out = {"units": {"length": u.length, "force": u.force}, "results": {}}
+    keys = [orjson.dumps(str(k)) for k in m.node_ids]
+    mkeys = [orjson.dumps(str(mm.id)) for mm in m.members]
+    supports = {m.node_index[nid]: m.dof[m.node_index[nid]] for nid in m.spec.supports}
+    pad, close = b"    ", b"\n   }"   # entries of results.<name>.nodes, depth 3
+    for res in results.items:
+        if results.deck_deflection(res.name) is not None:
+            return None
+        pos = res.state.positions
+        p, d = _rows(pos / L), _rows((pos - m.coordinates) / L)
+        mf = member_forces(m, res)
+        counts = [len(e) for e in mf.elements]
+        ends = _rows(np.concatenate(mf.elements) / F) if sum(counts) else []
+        columns = [_rows(mf.tension / F), _rows(mf.max_tension / F), _rows(mf.min_tension / F)]
+        if p is None or d is None or ends is None or any(c is None for c in columns):
+            return None
+        lines = [b'{"position":[' + a + b'],"displacement":[' + b + b"]" for a, b in zip(p, d)]
+        for k, g in supports.items():
+            reaction = _rows(res.reactions[g[:3]][None] / F)
+            if (g[3:] >= 0).all():
+                moment = _rows(res.reactions[g[3:]][None] / (F * L))
+                reaction = (None if reaction is None or moment is None
+                            else [reaction[0] + b'],"reaction_moment":[' + moment[0]])
+            if reaction is None:
+                return None
+            lines[k] += b',"reaction":[' + reaction[0] + b"]"
+        nodes = b"{\n" + b",\n".join(pad + k + b": " + v + b"}" for k, v in zip(keys, lines)) + close
+        split = np.cumsum([0] + counts).tolist()
+        flags = [b"true" if s else b"false" for s in mf.slack.tolist()]
+        members = b"{\n" + b",\n".join(
+            pad + key + b': {"tension":[' + t + b'],"max_tension":' + top + b',"min_tension":' + low
+            + b',"slack":' + flag + b',"elements":' + (b"[[" + b"],[".join(ends[a:b]) + b"]]" if b > a else b"[]")
+            + b"}"
+            for key, t, top, low, flag, a, b in zip(mkeys, *columns, flags, split[:-1], split[1:])) + close
+        if not m.node_ids:
+            nodes = b"{}"
+        if not m.members:
+            members = b"{}"
+        o = res.outcome
+        out["results"][res.name] = {
+            "converged": bool(o.converged),
+            "load_factor": float(o.load_factor),
+            "iterations": int(o.iterations),
+            "residual": float(o.residual),
+            "status": o.status,
+            "message": o.message,
+            "factors": dict(res.factors),
+            "nodes": _Text(nodes),
+            "members": _Text(members),
+        }
+    return out
 
 
 def _holds_table(value) -> bool:
@@ -100,6 +189,9 @@ def _dumps_bytes(data, indent: int = 1) -> bytes:
         return True
 
     def put(value, depth):
+        if type(value) is _Text:
+            parts.append(value)
+            return
         if isinstance(value, dict) and value:
             vals = list(value.values())
             if (set(map(type, vals)) == {dict}
