@@ -98,6 +98,14 @@ def member_forces(model: Model, result: StaticResult) -> MemberForces:
     return MemberForces(tension, mx, mn, slack, elements, beams)
 
 
+def result_header(res: StaticResult) -> dict:
+    """The per-result entries of results.json before ``nodes`` and ``members``."""
+    o = res.outcome
+    return {"converged": bool(o.converged), "load_factor": float(o.load_factor),
+            "iterations": int(o.iterations), "residual": float(o.residual), "status": o.status,
+            "message": o.message, "factors": dict(res.factors)}
+
+
 @dataclass(frozen=True)
 class Results:
     """All solved combinations of a model."""
@@ -215,18 +223,7 @@ class Results:
                     e["moment"] = ends[:, :, 4:6].tolist()
                     e["local_end_forces"] = ends.reshape(-1, 12).tolist()
                 members[mem.id] = e
-            o = res.outcome
-            out["results"][res.name] = {
-                "converged": bool(o.converged),
-                "load_factor": float(o.load_factor),
-                "iterations": int(o.iterations),
-                "residual": float(o.residual),
-                "status": o.status,
-                "message": o.message,
-                "factors": dict(res.factors),
-                "nodes": nodes,
-                "members": members,
-            }
+            out["results"][res.name] = {**result_header(res), "nodes": nodes, "members": members}
             deck = self.deck_deflection(res.name)
             if deck is not None:   # extension: [report] deck
                 out["results"][res.name]["deck"] = {"node": deck["node"],

@@ -82,6 +82,13 @@ class CaseText:
         text = f"{key(name)} = {v if raw else value(v)}"
         self.lines.append(text + (f"    # {comment}" if comment else ""))
 
+    def adjust(self, members, comment: str | None = None) -> None:
+        """One ``[[shape.adjust]]`` group; several ids are scaled together."""
+        self.table("shape.adjust", comment, array=True)
+        self.kv("members", members)
+        if not isinstance(members, str) and len(members) > 1:
+            self.kv("together", True)
+
 
 def header(case: CaseText, command: str, title: str, description: str,
            values: Mapping[str, Any], params: Sequence) -> None:

@@ -133,11 +133,7 @@ def build(values, command: str) -> str:
         case.kv("members", "H*")
     else:
         for k, ids in enumerate(groups):
-            case.table("shape.adjust", "The hangers of one deck node are scaled together."
-                       if k == 0 else None, array=True)
-            case.kv("members", ids)
-            if len(ids) > 1:
-                case.kv("together", True)
+            case.adjust(ids, "The hangers of one deck node are scaled together." if k == 0 else None)
     c.analysis(case)
     return case.text()
 

@@ -149,10 +149,7 @@ def build(values, command: str) -> str:
         case.kv(layout["nodes"][tag][i], f"{{ z = {c.num(zd)} }}", raw=True)
         groups.append(ids)
     for ids in groups:
-        case.table("shape.adjust", array=True)
-        case.kv("members", ids)
-        if len(ids) > 1:
-            case.kv("together", True)
+        case.adjust(ids)
     c.analysis(case)
     return case.text()
 

@@ -12,7 +12,7 @@ import numpy as np
 import orjson
 
 from ..elements import catenary
-from ..results import Results, beam_section_forces, element_end_tensions, member_forces
+from ..results import Results, beam_section_forces, element_end_tensions, member_forces, result_header
 from .atomic import atomic_path, write_text
 
 CURVE_POINTS = 9   # points drawn along each catenary element (ends included)
@@ -101,18 +101,7 @@ def _text_tables(results: Results) -> dict | None:
             nodes = b"{}"
         if not m.members:
             members = b"{}"
-        o = res.outcome
-        out["results"][res.name] = {
-            "converged": bool(o.converged),
-            "load_factor": float(o.load_factor),
-            "iterations": int(o.iterations),
-            "residual": float(o.residual),
-            "status": o.status,
-            "message": o.message,
-            "factors": dict(res.factors),
-            "nodes": _Text(nodes),
-            "members": _Text(members),
-        }
+        out["results"][res.name] = {**result_header(res), "nodes": _Text(nodes), "members": _Text(members)}
     return out
 
 
