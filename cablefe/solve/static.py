@@ -51,6 +51,10 @@ class StaticProblem:
         self._start = initial_state(model)
         self._r0 = self.assembler.evaluate(self._start, loads, 0.0, want_tangent=False).internal
         self._pres = np.flatnonzero(loads.prescribed != 0.0)
+        # (node, direction) of each prescribed DOF, found once
+        owner = np.empty((model.ndof, 2), dtype=np.int64)
+        owner[model.dof[model.dof >= 0]] = np.argwhere(model.dof >= 0)
+        self._pres_owner = owner[self._pres]
         self._roundoff = None
 
     # -- the problem interface -------------------------------------------------
@@ -62,14 +66,13 @@ class StaticProblem:
             return state
         pos = state.positions.copy()
         rot = None if state.rotations is None else state.rotations.copy()
-        dof = self.model.dof
+        n, d = self._pres_owner.T
+        value = self.loads.prescribed[self._pres]
+        move = d < 3
+        pos[n[move], d[move]] = self.model.coordinates[n[move], d[move]] + lam_to * value[move]
         spin = {}
-        for g in self._pres:
-            n, d = np.argwhere(dof == g)[0]
-            if d < 3:
-                pos[n, d] = self.model.coordinates[n, d] + lam_to * self.loads.prescribed[g]
-            else:
-                spin.setdefault(n, np.zeros(3))[d - 3] = self.loads.prescribed[g]
+        for node, direction, v in zip(n[~move], d[~move], value[~move]):
+            spin.setdefault(node, np.zeros(3))[direction - 3] = v
         # one rotation per node about the prescribed vector's fixed axis: the
         # steps commute, so the total is expm(prescribed rotation vector)
         # whatever the increments, also when several components are given
