@@ -78,7 +78,6 @@ def _fmt(x, unit, digits=4):
 
 
 def cmd_check(args) -> int:
-    import numpy as np
     from . import load_model
     model = load_model(args.case)
     spec = model.spec
@@ -86,10 +85,7 @@ def cmd_check(args) -> int:
     counts = {}
     for m in model.members:
         counts[m.type] = counts.get(m.type, 0) + 1
-    weight = 0.0
-    for f, t in model.families.items():
-        if len(t):
-            weight += float(np.sum(t.props["weight"] * t.props["unstressed_length"]))
+    weight = model.self_weight()
     print(f"case: {args.case}" + (f"  ({spec.title})" if spec.title else ""))
     print(f"units: length {u.length}, force {u.force}")
     print(f"nodes: {len(model.node_ids)} ({len(spec.nodes)} declared, "

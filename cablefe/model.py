@@ -179,6 +179,11 @@ class Model:
                            {f: np.zeros(len(t)) for f, t in self.families.items()},
                            np.zeros(self.ndof))
 
+    def self_weight(self) -> float:
+        """Total own weight of all members, N (weight per unstressed length x L0)."""
+        return float(sum(np.sum(t.props["weight"] * t.props["unstressed_length"])
+                         for t in self.families.values() if len(t)))
+
     def member_ids_matching(self, patterns) -> list[int]:
         return match_members([m.id for m in self.members], patterns)
 

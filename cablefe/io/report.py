@@ -130,8 +130,7 @@ def report_text(results, case_path, caution: str, figures: dict, shape_note: str
     counts: dict[str, int] = {}
     for mem in m.members:
         counts[mem.type] = counts.get(mem.type, 0) + 1
-    weight = sum(float(np.sum(t.props["weight"] * t.props["unstressed_length"]))
-                 for t in m.families.values() if len(t))
+    weight = m.self_weight()
     lines += ["## Model", "",
               f"- nodes: {len(m.node_ids)}; members: "
               + ", ".join(f"{n} {t}" for t, n in counts.items())
