@@ -713,8 +713,7 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
         if worst <= tol and (beams or moved <= settle):
             return model, result, X, lengths(theta), reports(), it
         if it == shape.max_iterations:
-            _, msg = _unmet_message(spec, reports(), tol, f"no convergence in {shape.max_iterations} iterations")
-            raise ShapeError(msg, [r for r in reports() if abs(r.miss) > tol])
+            break
         if worst < 0.9 * best:
             best, stalled = worst, 0
         elif worst > tol:
@@ -764,7 +763,9 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
             break
         theta, model, result = trial, trial_model, trial_result
         X = result.state.positions
-    raise AssertionError("unreachable")  # pragma: no cover - the loop returns or raises
+    # out of iterations: the loop only ends here when the targets were not met
+    _, msg = _unmet_message(spec, reports(), tol, f"no convergence in {shape.max_iterations} iterations")
+    raise ShapeError(msg, [r for r in reports() if abs(r.miss) > tol])
 
 
 # ---------------------------------------------------------------------------
