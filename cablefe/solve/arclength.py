@@ -1,0 +1,318 @@
+"""Arc-length path following through limit points (Crisfield's cylindrical method).
+
+Load control (:func:`cablefe.solve.newton.follow_load_path`) prescribes the
+load factor λ and cannot pass a maximum of the load: beyond a limit point
+there is no nearby equilibrium at the next λ.  Here λ is an unknown too and
+each step is fixed by its length in displacement space instead:
+
+    ||Δu||_2 = Δl                                  (the cylinder)
+
+with Δu the displacement of the unknowns since the last converged point.
+This is the cylindrical arc-length method of Crisfield 1981, "A fast
+incremental/iterative solution procedure that handles snap-through",
+Computers & Structures 13, 55-62 (from memory).  Each corrector iteration
+solves the linearised equilibrium
+
+    K δu = -r - g δλ,     g = ∂r/∂λ at fixed unknowns,
+
+as two solves with the same tangent, δu = δu_r + δλ δu_t with
+δu_r = -K⁻¹ r and δu_t = -K⁻¹ g, and takes δλ as the root of the quadratic
+that keeps ``Δu + δu`` on the cylinder whose displacement increment makes
+the smallest angle with the one before the iteration (Crisfield's root
+selection).  Complex roots, divergence or a singular tangent cut the arc
+length in half and retry the step from the last converged point, which also
+moves the iterates off an exactly singular tangent at a limit point.
+
+``g`` is a central difference of the residual in λ at fixed unknowns, with
+the prescribed DOFs moved along (``problem.impose``).  The residual of
+:class:`cablefe.solve.static.StaticProblem` is not simply ``-λ f_ext``: the
+element loads (catenary weight, thermal strain) and support movements scale
+with λ and enter it nonlinearly, so an analytic ``-f_ext`` would be wrong in
+general.  An inexact ``g`` only slows the corrector; the converged points
+satisfy ``r = 0`` to the same test as load control
+(:func:`cablefe.solve.newton.is_converged`).
+
+The predictor direction is ``δu_t`` at the last converged point, its sign
+chosen so that it continues the previous step (positive work
+``Δu_prev · δu_t``), or so that λ grows towards the target on the first
+step.  Where the tangent there is exactly singular, the previous increment
+is used as a secant predictor.
+
+The norm mixes translations (m) and rotations (rad) of the unknowns
+unweighted; models with beams whose rotations are large compared with the
+translations in metres get a cylinder weighted towards rotations.
+
+When λ crosses ``target_load_factor`` the driver lands on it exactly: a
+Newton iteration at fixed λ = target (the load-control corrector, with its
+line search) starts from the linear interpolation between the last two
+points.  If that fails the crossing step is cut and retried.
+"""
+from __future__ import annotations
+
+import logging
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import MechanismError
+from .newton import NewtonSettings, is_converged, newton_increment
+
+log = logging.getLogger(__name__)
+
+#: corrector iterations aimed at per step; the next arc length scales by
+#: sqrt(DESIRED_ITERATIONS / iterations), Crisfield's rule (from memory)
+DESIRED_ITERATIONS = 4
+#: the arc length never grows beyond this multiple of the first one, so a
+#: long easy stretch does not leap over a limit point it should resolve
+MAX_GROWTH = 4.0
+#: relative step in λ of the central difference for ∂r/∂λ: truncation
+#: ~h² |∂³r/∂λ³| and round-off ~eps |r| / h are both ~1e-10 of the load scale
+DLAM = 1.0e-5
+
+
+@dataclass(frozen=True)
+class ArcLengthOutcome:
+    """Result of following the equilibrium path by arc length.
+
+    Attributes
+    ----------
+    state : the last converged state (at ``target_load_factor`` when converged)
+    converged : True when ``target_load_factor`` was reached
+    load_factor : the last converged load factor
+    iterations : total corrector and landing iterations
+    residual : relative residual of the last converged state
+    status : "converged" | "max-steps" | "max-cuts" | "mechanism" | "non-finite"
+    message : a sentence for the engineer
+    history : relative residual of every iteration, in order
+    increments : load factors of the converged points, in order (the path;
+        not monotonic past a limit point)
+    states : the converged states, one per entry of ``increments``
+    arc_lengths : arc length (norm of the unknowns' increment, m or rad) of
+        each converged step; the landing step records the interpolated
+        length it started from
+    """
+
+    state: object
+    converged: bool
+    load_factor: float
+    iterations: int
+    residual: float
+    status: str
+    message: str
+    history: tuple = ()
+    increments: tuple = ()
+    states: tuple = ()
+    arc_lengths: tuple = ()
+
+
+def _relative(r, ref) -> float:
+    n = float(np.linalg.norm(r))
+    return n / ref if math.isfinite(n) else math.inf
+
+
+def _load_derivative(problem, state, lam) -> np.ndarray:
+    """∂r/∂λ at fixed unknowns by a central difference (prescribed DOFs moved along)."""
+    h = DLAM * max(1.0, abs(lam))
+    r_p, _, _ = problem.evaluate(problem.impose(state, lam, lam + h), lam + h, False)
+    r_m, _, _ = problem.evaluate(problem.impose(state, lam, lam - h), lam - h, False)
+    return (r_p - r_m) / (2.0 * h)
+
+
+@dataclass
+class _Try:
+    converged: bool
+    state: object = None
+    lam: float = 0.0
+    du: np.ndarray | None = None     # increment of the unknowns over the step
+    iterations: int = 0
+    ratio: float = math.inf
+    failure: str = ""
+    mechanism: MechanismError | None = None
+
+
+def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -> _Try:
+    """One arc-length step of length ``dl`` from the converged ``(state, lam)``.
+
+    ``direction`` is the previous converged increment (None on the first
+    step); ``lam_sign`` the sign of λ growth wanted on the first step.
+    """
+    roundoff = float(getattr(problem, "roundoff", 0.0))
+    # -- predictor along the tangent, or along the previous step (secant)
+    r, ref, K = problem.evaluate(state, lam, True)
+    try:
+        ut = -problem.solve_linear(K, _load_derivative(problem, state, lam))
+        singular = None
+    except MechanismError as exc:
+        ut, singular = None, exc
+    if ut is not None and np.all(np.isfinite(ut)) and float(np.linalg.norm(ut)) > 0.0:
+        sign = lam_sign if direction is None else (1.0 if float(direction[0] @ ut) >= 0.0 else -1.0)
+        dlam = sign * dl / float(np.linalg.norm(ut))
+        du = dlam * ut
+    else:
+        if direction is None:
+            if singular is not None:
+                return _Try(False, failure="mechanism", mechanism=singular)
+            return _Try(False, failure="non-finite")
+        # singular tangent exactly at the converged point: the previous
+        # increment (unknowns, λ) scaled to the new length is the predictor
+        prev_du, prev_dlam = direction
+        scale = dl / float(np.linalg.norm(prev_du))
+        du, dlam = scale * prev_du, scale * prev_dlam
+    lam_new = lam + dlam
+    trial = problem.impose(problem.advance(state, du), lam, lam_new)
+    # -- corrector on the cylinder ||du|| = dl
+    for it in range(settings.max_iterations + 1):
+        r, ref, K = problem.evaluate(trial, lam_new, True)
+        ratio = _relative(r, ref)
+        history.append(ratio)
+        if not math.isfinite(ratio):
+            return _Try(False, iterations=it, failure="non-finite")
+        if is_converged(ratio * ref, ref, settings.tolerance, roundoff):
+            return _Try(True, trial, lam_new, du, it, ratio)
+        if it == settings.max_iterations:
+            break
+        try:
+            ur = -problem.solve_linear(K, r)
+            ut = -problem.solve_linear(K, _load_derivative(problem, trial, lam_new))
+        except MechanismError as exc:
+            return _Try(False, iterations=it, failure="mechanism", mechanism=exc)
+        if not (np.all(np.isfinite(ur)) and np.all(np.isfinite(ut))):
+            return _Try(False, iterations=it, failure="non-finite")
+        # ||du + ur + x ut||² = dl²  ->  a x² + b x + c = 0
+        base = du + ur
+        a = float(ut @ ut)
+        b = 2.0 * float(ut @ base)
+        c = float(base @ base) - dl * dl
+        disc = b * b - 4.0 * a * c
+        if a == 0.0 or disc < 0.0:
+            return _Try(False, iterations=it, failure="complex-roots")
+        sq = math.sqrt(disc)
+        # the stable form of the two roots (no cancellation in -b ± sq)
+        q = -0.5 * (b + math.copysign(sq, b))
+        roots = (q / a, c / q) if q != 0.0 else (0.0, 0.0)
+        # Crisfield's choice: the new increment closest in angle to the old one
+        x = max(roots, key=lambda x: float(du @ (base + x * ut)))
+        step = ur + x * ut
+        du = du + step
+        trial = problem.impose(problem.advance(trial, step), lam_new, lam_new + x)
+        lam_new += x
+    return _Try(False, iterations=settings.max_iterations, failure="max-iterations")
+
+
+def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_length: float | None = None,
+                      max_steps: int = 200, target_load_factor: float = 1.0,
+                      progress=None, max_arc_length: float | None = None) -> ArcLengthOutcome:
+    """Trace the equilibrium path by arc length until λ reaches the target.
+
+    Parameters
+    ----------
+    problem : the load-control driver's problem (see :mod:`cablefe.solve.newton`)
+    settings : NewtonSettings
+        ``tolerance`` and ``max_iterations`` as in load control;
+        ``max_cuts`` halvings of the arc length in a row are allowed;
+        ``increments`` sets the first arc length when ``arc_length`` is None.
+    arc_length : float, optional
+        First arc length: norm of the unknowns' increment (m, rad for
+        rotations).  Default: the length of the linear (tangent) response to
+        a load-factor step ``target_load_factor / settings.increments``.
+    max_steps : int
+        Converged steps allowed before giving up (status "max-steps").
+    target_load_factor : float
+        Load factor at which to stop, landing on it exactly.
+    progress : callable(load_factor, iterations), optional
+    max_arc_length : float, optional
+        Longest arc length the steps may grow to (same units as
+        ``arc_length``); default ``MAX_GROWTH`` times the first.
+
+    Returns
+    -------
+    ArcLengthOutcome
+        ``increments`` and ``states`` hold the traced path, starting at λ = 0.
+    """
+    if not (max_steps >= 1):
+        raise ValueError(f"max_steps must be at least 1, got {max_steps}")
+    if not math.isfinite(target_load_factor) or target_load_factor == 0.0:
+        raise ValueError(f"target_load_factor must be finite and non-zero, got {target_load_factor}")
+    if arc_length is not None and not (math.isfinite(arc_length) and arc_length > 0.0):
+        raise ValueError(f"arc_length must be a positive length, got {arc_length}")
+    if max_arc_length is not None and not (math.isfinite(max_arc_length) and max_arc_length > 0.0):
+        raise ValueError(f"max_arc_length must be a positive length, got {max_arc_length}")
+    state = problem.initial_state()
+    lam = 0.0
+    lam_sign = math.copysign(1.0, target_load_factor)
+    history: list[float] = []
+    lams, states, lengths = [0.0], [state], []
+    total = 0
+    last_ratio = 0.0
+    if arc_length is None:
+        _, _, K = problem.evaluate(state, lam, True)
+        try:
+            ut = problem.solve_linear(K, _load_derivative(problem, state, lam))
+        except MechanismError as exc:
+            return ArcLengthOutcome(state, False, lam, 0, 0.0, "mechanism", str(exc) + "; at load factor 0",
+                                    (), tuple(lams), tuple(states), ())
+        arc_length = abs(target_load_factor) / max(settings.increments, 1) * float(np.linalg.norm(ut))
+        if not (math.isfinite(arc_length) and arc_length > 0.0):
+            return ArcLengthOutcome(state, False, lam, 0, 0.0, "non-finite",
+                                    "the load does not move the structure; no arc length can be set",
+                                    (), tuple(lams), tuple(states), ())
+    dl_max = MAX_GROWTH * arc_length if max_arc_length is None else max_arc_length
+    dl = min(arc_length, dl_max)
+    direction = None
+    cuts = 0
+
+    def stop(status, msg):
+        return ArcLengthOutcome(state, False, lam, total, last_ratio, status,
+                                msg + f"; last converged load factor {lam:.4f}", tuple(history),
+                                tuple(lams), tuple(states), tuple(lengths))
+
+    while len(lams) <= max_steps:
+        t = _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history)
+        total += t.iterations
+        landed = None
+        if t.converged and (lam - target_load_factor) * (t.lam - target_load_factor) <= 0.0 \
+                and t.lam != lam:
+            # crossed the target: Newton at fixed λ from the interpolated state
+            s = (target_load_factor - lam) / (t.lam - lam)
+            landing_length = s * float(np.linalg.norm(t.du))
+            guess = problem.impose(problem.advance(state, s * t.du), lam, target_load_factor)
+            landed = newton_increment(problem, guess, target_load_factor, settings)
+            total += landed.iterations
+            history.extend(landed.history)
+            if not landed.converged:
+                t = _Try(False, failure=landed.failure or "landing", mechanism=landed.mechanism)
+        if not t.converged:
+            cuts += 1
+            log.info("arc-length step of %.3g from load factor %.4f failed (%s); cutting", dl, lam, t.failure)
+            if cuts > settings.max_cuts:
+                if t.failure == "mechanism":
+                    return stop("mechanism", str(t.mechanism))
+                if t.failure == "non-finite":
+                    return stop("non-finite", "the residual became non-finite")
+                return stop("max-cuts", f"no convergence beyond load factor {lam:.4f} after "
+                                        f"{settings.max_cuts} arc-length cuts")
+            dl *= 0.5
+            continue
+        if landed is not None:
+            lengths.append(landing_length)
+            state, lam, last_ratio = landed.state, target_load_factor, landed.ratio
+            problem.commit(state)
+            lams.append(lam)
+            states.append(state)
+            if progress is not None:
+                progress(lam, total)
+            return ArcLengthOutcome(state, True, lam, total, last_ratio, "converged", "converged",
+                                    tuple(history), tuple(lams), tuple(states), tuple(lengths))
+        direction = (t.du, t.lam - lam)
+        state, lam, last_ratio = t.state, t.lam, t.ratio
+        problem.commit(state)
+        lams.append(lam)
+        states.append(state)
+        lengths.append(dl)
+        cuts = 0
+        if progress is not None:
+            progress(lam, total)
+        log.info("arc length %.3g: load factor %.4f in %d iterations", dl, lam, t.iterations)
+        dl = min(dl_max, dl * min(2.0, math.sqrt(DESIRED_ITERATIONS / max(t.iterations, 1))))
+    return stop("max-steps", f"target load factor {target_load_factor:.4f} not reached in {max_steps} steps")
