@@ -56,7 +56,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import MechanismError
-from .newton import NewtonSettings, is_converged, newton_increment
+from .newton import NewtonSettings, PathOutcome, _relative, is_converged, newton_increment
 
 log = logging.getLogger(__name__)
 
@@ -72,7 +72,7 @@ DLAM = 1.0e-5
 
 
 @dataclass(frozen=True)
-class ArcLengthOutcome:
+class ArcLengthOutcome(PathOutcome):
     """Result of following the equilibrium path by arc length.
 
     Attributes
@@ -93,22 +93,8 @@ class ArcLengthOutcome:
         length it started from
     """
 
-    state: object
-    converged: bool
-    load_factor: float
-    iterations: int
-    residual: float
-    status: str
-    message: str
-    history: tuple = ()
-    increments: tuple = ()
     states: tuple = ()
     arc_lengths: tuple = ()
-
-
-def _relative(r, ref) -> float:
-    n = float(np.linalg.norm(r))
-    return n / ref if math.isfinite(n) else math.inf
 
 
 def _load_derivative(problem, state, lam) -> np.ndarray:
