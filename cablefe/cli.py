@@ -116,6 +116,8 @@ def _summary(results) -> None:
         j = int(np.argmax(mf.max_tension)) if len(mf.max_tension) else 0
         flag = "converged" if o.converged else f"NOT CONVERGED ({o.message})"
         print(f"  {res.name}: {flag}; load factor {o.load_factor:.3f}, {o.iterations} iterations")
+        for w in o.warnings:
+            print(f"    WARNING: {w}")
         if len(disp):
             print(f"    largest displacement {_fmt(disp[k] / u.length_scale, u.length)} at node {m.node_ids[k]}")
         if len(mf.max_tension):

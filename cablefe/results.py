@@ -103,7 +103,7 @@ def result_header(res: StaticResult) -> dict:
     o = res.outcome
     return {"converged": bool(o.converged), "load_factor": float(o.load_factor),
             "iterations": int(o.iterations), "residual": float(o.residual), "status": o.status,
-            "message": o.message, "factors": dict(res.factors)}
+            "message": o.message, "factors": dict(res.factors), "warnings": list(o.warnings)}
 
 
 @dataclass(frozen=True)

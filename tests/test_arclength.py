@@ -194,3 +194,17 @@ def test_singular_tangent_at_the_limit_points_does_not_stop_the_driver():
 def test_bad_arguments_are_refused(kw):
     with pytest.raises(ValueError):
         follow_arc_length(CubicSpring(), SETTINGS, **kw)
+
+
+def test_load_control_warns_when_it_jumps_a_limit_point():
+    # source: a Newton direction du = -K^-1 r with du . r > 0 proves that the
+    # tangent K is not positive definite (Sylvester's criterion; any linear
+    # algebra text), which on the Von Mises truss happens only past the limit
+    # point (Bažant & Cedolin 1991, ch. 4, from memory)
+    u_star, P_max = limit_point()
+    jumping, _ = truss_problem(2.0 * P_max)       # λ = 1 lies beyond the snap
+    out = follow_load_path(jumping, NewtonSettings(increments=8))
+    assert out.converged and out.warnings
+    assert "limit point" in out.warnings[0]
+    below, _ = truss_problem(0.8 * P_max)          # stays on the stable branch
+    assert follow_load_path(below, NewtonSettings(increments=8)).warnings == ()

@@ -153,6 +153,9 @@ def report_text(results, case_path, caution: str, figures: dict, shape_note: str
                      f"| {res.outcome.iterations} | {disp[k] / L:.4g} | {m.node_ids[k]} "
                      f"| {mf.max_tension[j] / F:.4g} | {m.members[j].id} | {int(mf.slack.sum())} |")
     lines.append("")
+    for r in results.items:
+        for w in r.outcome.warnings:
+            lines += [f"**Warning, {r.name}**: {w}.", ""]
     not_conv = [r for r in results.items if not r.converged]
     for r in not_conv:
         lines += [f"**{r.name} did not converge**: {r.outcome.message}. Its values are those of the "

@@ -237,12 +237,12 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
             ut = problem.solve_linear(K, _load_derivative(problem, state, lam))
         except MechanismError as exc:
             return ArcLengthOutcome(state, False, lam, 0, 0.0, "mechanism", str(exc) + "; at load factor 0",
-                                    (), tuple(lams), tuple(states), ())
+                                    (), tuple(lams), states=tuple(states), arc_lengths=())
         arc_length = abs(target_load_factor) / max(settings.increments, 1) * float(np.linalg.norm(ut))
         if not (math.isfinite(arc_length) and arc_length > 0.0):
             return ArcLengthOutcome(state, False, lam, 0, 0.0, "non-finite",
                                     "the load does not move the structure; no arc length can be set",
-                                    (), tuple(lams), tuple(states), ())
+                                    (), tuple(lams), states=tuple(states), arc_lengths=())
     dl_max = MAX_GROWTH * arc_length if max_arc_length is None else max_arc_length
     dl = min(arc_length, dl_max)
     direction = None
@@ -251,7 +251,7 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
     def stop(status, msg):
         return ArcLengthOutcome(state, False, lam, total, last_ratio, status,
                                 msg + f"; last converged load factor {lam:.4f}", tuple(history),
-                                tuple(lams), tuple(states), tuple(lengths))
+                                tuple(lams), states=tuple(states), arc_lengths=tuple(lengths))
 
     while len(lams) <= max_steps:
         t = _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history)
@@ -289,7 +289,7 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
             if progress is not None:
                 progress(lam, total)
             return ArcLengthOutcome(state, True, lam, total, last_ratio, "converged", "converged",
-                                    tuple(history), tuple(lams), tuple(states), tuple(lengths))
+                                    tuple(history), tuple(lams), states=tuple(states), arc_lengths=tuple(lengths))
         direction = (t.du, t.lam - lam)
         state, lam, last_ratio = t.state, t.lam, t.ratio
         problem.commit(state)

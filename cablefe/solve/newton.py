@@ -69,6 +69,8 @@ class PathOutcome:
     message : a sentence for the engineer
     history : relative residual of every iteration, in order
     increments : load factors of the converged increments
+    warnings : sentences for the engineer, e.g. an indefinite tangent met
+        on the way (a limit point may have been jumped)
     """
 
     state: object
@@ -80,6 +82,7 @@ class PathOutcome:
     message: str
     history: tuple = ()
     increments: tuple = ()
+    warnings: tuple = ()
 
 
 def is_converged(residual_norm: float, reference: float, tolerance: float, roundoff: float = 0.0) -> bool:
@@ -96,6 +99,7 @@ class _Step:
     failure: str = ""
     mechanism: MechanismError | None = None
     history: list = field(default_factory=list)
+    indefinite: bool = False     # some Newton direction was not a descent direction
 
 
 def _relative(r, ref) -> float:
@@ -106,6 +110,8 @@ def _relative(r, ref) -> float:
 #: a step is accepted by the energy line search when the slope of the
 #: potential along it has dropped to this fraction of its starting value
 SLOPE_RATIO = 0.5
+#: relative size of du . r above which the tangent is taken as indefinite
+INDEFINITE_SLOPE = 1e-10
 
 
 def _line_search(problem, state, du, r, ratio, lam, settings: NewtonSettings):
@@ -198,12 +204,13 @@ def newton_increment(problem, state, lam, settings: NewtonSettings) -> _Step:
     r, ref, K = problem.evaluate(state, lam, True)
     ratio = _relative(r, ref)
     roundoff = float(getattr(problem, "roundoff", 0.0))
+    indefinite = False
     for it in range(settings.max_iterations + 1):
         history.append(ratio)
         if not math.isfinite(ratio):
             return _Step(state, False, it, ratio, "non-finite", history=history)
         if is_converged(ratio * ref, ref, settings.tolerance, roundoff):
-            return _Step(state, True, it, ratio, history=history)
+            return _Step(state, True, it, ratio, history=history, indefinite=indefinite)
         if it == settings.max_iterations:
             break
         try:
@@ -212,6 +219,9 @@ def newton_increment(problem, state, lam, settings: NewtonSettings) -> _Step:
             return _Step(state, False, it, ratio, "mechanism", mechanism=exc, history=history)
         if not np.all(np.isfinite(du)):
             return _Step(state, False, it, ratio, "non-finite", history=history)
+        # du = -K^-1 r, so du . r = -r K^-1 r < 0 for a positive definite K: a
+        # positive value proves an indefinite tangent (an unstable state)
+        indefinite |= float(du @ r) > INDEFINITE_SLOPE * float(np.linalg.norm(du) * np.linalg.norm(r))
         state, r, ref, K, ratio = _line_search(problem, state, du, r, ratio, lam, settings)
     return _Step(state, False, settings.max_iterations, ratio, "max-iterations", history=history)
 
@@ -241,6 +251,7 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
     done: list[float] = []
     cuts = 0
     last_ratio = 0.0
+    warnings: list[str] = []
     while lam < 1.0:
         target = min(1.0, lam + step)
         if 1.0 - target < 1e-12:
@@ -250,6 +261,11 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
         total_iterations += result.iterations
         history.extend(result.history)
         if result.converged:
+            if result.indefinite:
+                warnings.append(f"the tangent stiffness was not positive definite on the way from load "
+                                f"factor {lam:.4f} to {target:.4f}: a limit point (snap-through, buckling) "
+                                f"may have been passed; check the path by arc length")
+                log.warning(warnings[-1])
             state, lam, last_ratio = result.state, target, result.ratio
             problem.commit(state)
             done.append(lam)
@@ -272,7 +288,8 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
                 status, msg = "max-cuts", (f"no convergence beyond load factor {lam:.4f} after "
                                            f"{settings.max_cuts} increment cuts")
             return PathOutcome(state, False, lam, total_iterations, last_ratio, status,
-                               msg + f"; last converged load factor {lam:.4f}", tuple(history), tuple(done))
+                               msg + f"; last converged load factor {lam:.4f}", tuple(history), tuple(done),
+                               tuple(warnings))
         step *= 0.5
     return PathOutcome(state, True, 1.0, total_iterations, last_ratio, "converged",
-                       "converged", tuple(history), tuple(done))
+                       "converged", tuple(history), tuple(done), tuple(warnings))
