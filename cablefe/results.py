@@ -5,7 +5,7 @@ for writing.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Mapping
 
 import numpy as np
@@ -112,6 +112,9 @@ class Results:
 
     model: Model
     items: tuple[StaticResult, ...]
+    # member forces per result, computed once: the summary, the report, the
+    # plots and the writers all ask for them
+    _forces: dict = field(default_factory=dict, init=False, repr=False, compare=False)
 
     @property
     def names(self) -> list[str]:
@@ -145,7 +148,9 @@ class Results:
         return out
 
     def member_forces(self, name: str) -> MemberForces:
-        return member_forces(self.model, self[name])
+        if name not in self._forces:
+            self._forces[name] = member_forces(self.model, self[name])
+        return self._forces[name]
 
     def tension(self, name: str, member: str) -> np.ndarray:
         """(2,) tension at the first and last node of a member, N."""
@@ -201,7 +206,7 @@ class Results:
                     R = np.einsum("nij,nkj->nik", R, m.initial_rotations[turning])
                 for k, theta in zip(turning, logm_so3(R).tolist()):
                     nodes[m.node_ids[k]]["rotation"] = theta
-            mf = member_forces(m, res)
+            mf = self.member_forces(res.name)
             members = {}
             counts = [len(e) for e in mf.elements]
             split = np.cumsum([0] + counts).tolist()

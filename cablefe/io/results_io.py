@@ -12,7 +12,7 @@ import numpy as np
 import orjson
 
 from ..elements import catenary
-from ..results import Results, beam_section_forces, element_end_tensions, member_forces, result_header
+from ..results import Results, beam_section_forces, element_end_tensions, result_header
 from .atomic import atomic_path, write_text
 
 CURVE_POINTS = 9   # points drawn along each catenary element (ends included)
@@ -73,7 +73,7 @@ def _text_tables(results: Results) -> dict | None:
             return None
         pos = res.state.positions
         p, d = _rows(pos / L), _rows((pos - m.coordinates) / L)
-        mf = member_forces(m, res)
+        mf = results.member_forces(res.name)
         counts = [len(e) for e in mf.elements]
         ends = _rows(np.concatenate(mf.elements) / F) if sum(counts) else []
         columns = [_rows(mf.tension / F), _rows(mf.max_tension / F), _rows(mf.min_tension / F)]
