@@ -206,7 +206,10 @@ def strand_weight(area: float) -> float:
 
 
 def node(case: CaseText, nid: str, xyz: Iterable[float]) -> None:
-    case.lines.append(f"{key(nid)} = [{', '.join(num(c) for c in xyz)}]")
+    # Coordinates are rounded to a nanometre: below that the digits are
+    # round-off of the layout arithmetic and differ between BLAS builds,
+    # which would make the written file depend on the machine.
+    case.lines.append(f"{key(nid)} = [{', '.join(num(round(float(c), 9)) for c in xyz)}]")
 
 
 def member(case: CaseText, mid: str, mtype: str, a: str, b: str, section: str, **extra) -> None:
