@@ -37,7 +37,7 @@ def main(argv=None) -> None:
     from cablefe.io.case import read_case
     from cablefe.io.results_io import write_json, write_meshes
     from cablefe.model import build_model
-    from cablefe.solve import linear
+    from cablefe.solvers import linear
     linear.available_backends()
     text, row = suspension_bridge(args.panels, cable_divide=args.divide)
     with tempfile.TemporaryDirectory() as folder:

@@ -126,7 +126,7 @@ def _reset_peak() -> bool:
 def worker(N: int, backend: str, check: bool, repeat: int = 3) -> dict:
     """Measure one backend on one net size (runs in its own process)."""
     sys.path.insert(0, str(ROOT))
-    from cablefe.solve.linear import available_backends, make_linear_solver
+    from cablefe.solvers.linear import available_backends, make_linear_solver
 
     t = time.perf_counter()
     K = net_stiffness(N)
@@ -195,7 +195,7 @@ def main(argv=None) -> int:
         return 0
 
     sys.path.insert(0, str(ROOT))
-    from cablefe.solve.linear import available_backends
+    from cablefe.solvers.linear import available_backends
     backends = args.backends or available_backends()
 
     records = []

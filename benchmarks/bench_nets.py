@@ -51,7 +51,7 @@ def worker(N: int, folder: str, dr: bool, backend: str = "auto") -> dict:
     from cablefe.io.case import read_case
     from cablefe.io.results_io import write_json, write_meshes
     from cablefe.model import build_model
-    from cablefe.solve import linear
+    from cablefe.solvers import linear
     linear.available_backends()
     row["import_s"] = time.perf_counter() - t
     t = time.perf_counter(); spec = read_case(case); row["read_s"] = time.perf_counter() - t

@@ -6,8 +6,8 @@ import logging
 from .assembly import Assembler
 from .model import Model
 from .results import Results
-from .solve.linear import make_linear_solver
-from .solve.static import solve_combination
+from .solvers.linear import make_linear_solver
+from .solvers.static import solve_combination
 
 log = logging.getLogger(__name__)
 

@@ -139,7 +139,7 @@ def _shape(case_path, shaped_path, solver=None) -> bool:
     from . import read_case
     from .errors import CaseError
     from .io.case_writer import write_shape_outputs
-    from .solve.formfind import ShapeError, find_shape
+    from .solvers.formfind import ShapeError, find_shape
     spec = read_case(case_path)
     u = spec.units
     t0 = time.perf_counter()

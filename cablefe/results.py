@@ -11,7 +11,7 @@ from typing import Mapping
 import numpy as np
 
 from .model import Model, report_deck_nodes
-from .solve.static import StaticResult
+from .solvers.static import StaticResult
 
 
 @dataclass(frozen=True)

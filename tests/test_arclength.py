@@ -8,9 +8,9 @@ from scipy.optimize import brentq, minimize_scalar
 
 import cablefe
 from cablefe.errors import MechanismError
-from cablefe.solve.arclength import follow_arc_length
-from cablefe.solve.newton import NewtonSettings, follow_load_path
-from cablefe.solve.static import StaticProblem
+from cablefe.solvers.arclength import follow_arc_length
+from cablefe.solvers.newton import NewtonSettings, follow_load_path
+from cablefe.solvers.static import StaticProblem
 from cablefe.spec import Material, Member, NodalLoad, Section
 from conftest import make_spec
 

@@ -14,8 +14,8 @@ from cablefe.io.case import parse_case
 from cablefe.io.case_writer import shaped_case_dict, write_shape_outputs
 from cablefe.model import build_model
 from cablefe.results import beam_section_forces
-from cablefe.solve.formfind import find_shape, permanent_factors, shaped_case
-from cablefe.solve.static import solve_combination
+from cablefe.solvers.formfind import find_shape, permanent_factors, shaped_case
+from cablefe.solvers.static import solve_combination
 
 CASES = Path(__file__).resolve().parent.parent / "cases"
 

@@ -20,7 +20,7 @@ import cablefe
 from cablefe.assembly import Assembler, State, initial_state
 from cablefe.cli import main
 from cablefe.errors import CaseError
-from cablefe.solve.static import StaticProblem
+from cablefe.solvers.static import StaticProblem
 from cablefe.spec import (AnalysisSettings, Material, Member, MemberLoad, NodalLoad, PatchLoad,
                           PrescribedDisplacement, Section, SelfWeight, TemperatureLoad)
 from conftest import make_spec

@@ -18,10 +18,10 @@ from cablefe.elements import bar, catenary
 from cablefe.errors import CaseError
 from cablefe.io.case_writer import cutting_path
 from cablefe.model import build_model
-from cablefe.solve.formfind import (ShapeError, catenary_length_for_chord_force, find_shape,
+from cablefe.solvers.formfind import (ShapeError, catenary_length_for_chord_force, find_shape,
                                     force_density_shape, length_sensitivity, model_size,
                                     permanent_factors)
-from cablefe.solve.static import solve_combination
+from cablefe.solvers.static import solve_combination
 from cablefe.spec import (AdjustGroup, AnalysisSettings, Material, Member, NodalLoad, Section,
                           SelfWeight, ShapeSpec)
 from conftest import make_spec

@@ -231,7 +231,7 @@ def test_generated_suspension_cable_converges_at_second_order_with_hanger_spacin
     import dataclasses
     import tomllib
     from cablefe.io.case import parse_case
-    from cablefe.solve.formfind import find_shape
+    from cablefe.solvers.formfind import find_shape
     lengths = []
     for spacing in ("10 m", "5 m", "2.5 m", "1.25 m"):
         spec = parse_case(tomllib.loads(generate("suspension", {"hanger_spacing": spacing, "deck": "bars",

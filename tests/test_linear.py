@@ -1,4 +1,4 @@
-"""Tests of the sparse linear-solver layer (cablefe.solve.linear).
+"""Tests of the sparse linear-solver layer (cablefe.solvers.linear).
 
 Reference solutions come from dense LAPACK through numpy.linalg and from the
 closed form of a chain of springs in series.  The random test matrices are
@@ -15,7 +15,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose, assert_array_equal
 
-from cablefe.solve.linear import (
+from cablefe.solvers.linear import (
     KNOWN_BACKENDS,
     SingularMatrixError,
     StaleFactorizationError,

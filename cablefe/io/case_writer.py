@@ -41,7 +41,7 @@ def shaped_case_dict(spec: CaseSpec) -> dict:
     ----------
     spec : CaseSpec
         The shaped case (SI coordinates and lengths, as made by
-        :func:`cablefe.solve.formfind.shaped_case`) whose ``raw`` is the
+        :func:`cablefe.solvers.formfind.shaped_case`) whose ``raw`` is the
         parsed input file.
 
     Returns
@@ -113,7 +113,7 @@ def write_shaped_case(path, spec: CaseSpec, header: str = "") -> Path:
 
 
 def cutting_csv_text(table, units) -> str:
-    """CSV text of a :class:`cablefe.solve.formfind.CuttingTable` in the case's units.
+    """CSV text of a :class:`cablefe.solvers.formfind.CuttingTable` in the case's units.
 
     Columns ``member, unstressed_length_<L>, tension_<F>, loaded_length_<L>``
     and, with a fabrication temperature, ``fabrication_length_<L>``.

@@ -169,7 +169,7 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
                       progress=None, assembler: Assembler | None = None) -> StaticResult:
     """Solve one combination of load cases nonlinearly from the model's geometry.
 
-    ``assembler`` and a :class:`~cablefe.solve.linear.LinearSolver` object
+    ``assembler`` and a :class:`~cablefe.solvers.linear.LinearSolver` object
     as ``linear_solver`` may be passed to share their per-pattern work
     between the combinations of one model (see :func:`cablefe.analysis.solve`).
     """

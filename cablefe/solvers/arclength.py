@@ -1,6 +1,6 @@
 """Arc-length path following through limit points (Crisfield's cylindrical method).
 
-Load control (:func:`cablefe.solve.newton.follow_load_path`) prescribes the
+Load control (:func:`cablefe.solvers.newton.follow_load_path`) prescribes the
 load factor λ and cannot pass a maximum of the load: beyond a limit point
 there is no nearby equilibrium at the next λ.  Here λ is an unknown too and
 each step is fixed by its length in displacement space instead:
@@ -25,12 +25,12 @@ moves the iterates off an exactly singular tangent at a limit point.
 
 ``g`` is a central difference of the residual in λ at fixed unknowns, with
 the prescribed DOFs moved along (``problem.impose``).  The residual of
-:class:`cablefe.solve.static.StaticProblem` is not simply ``-λ f_ext``: the
+:class:`cablefe.solvers.static.StaticProblem` is not simply ``-λ f_ext``: the
 element loads (catenary weight, thermal strain) and support movements scale
 with λ and enter it nonlinearly, so an analytic ``-f_ext`` would be wrong in
 general.  An inexact ``g`` only slows the corrector; the converged points
 satisfy ``r = 0`` to the same test as load control
-(:func:`cablefe.solve.newton.is_converged`).
+(:func:`cablefe.solvers.newton.is_converged`).
 
 The predictor direction is ``δu_t`` at the last converged point, its sign
 chosen so that it continues the previous step (positive work
@@ -193,7 +193,7 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
 
     Parameters
     ----------
-    problem : the load-control driver's problem (see :mod:`cablefe.solve.newton`)
+    problem : the load-control driver's problem (see :mod:`cablefe.solvers.newton`)
     settings : NewtonSettings
         ``tolerance`` and ``max_iterations`` as in load control;
         ``max_cuts`` halvings of the arc length in a row are allowed;
