@@ -12,7 +12,8 @@ from .solvers.static import solve_combination
 log = logging.getLogger(__name__)
 
 
-def solve(model: Model, names=None, progress=None, linear_solver: str | None = None) -> Results:
+def solve(model: Model, names=None, progress=None, linear_solver: str | None = None,
+          on_result=None) -> Results:
     """Solve every combination (or every load case when there are none).
 
     Parameters
@@ -23,6 +24,9 @@ def solve(model: Model, names=None, progress=None, linear_solver: str | None = N
     progress : callable(name, load_factor, iterations), optional
     linear_solver : str, optional
         Backend name overriding ``[analysis] solver``.
+    on_result : callable(StaticResult), optional
+        Called with each result as soon as it is solved, so that a caller
+        keeps what was solved when a later result raises or is interrupted.
 
     Returns
     -------
@@ -47,4 +51,6 @@ def solve(model: Model, names=None, progress=None, linear_solver: str | None = N
         cb = None if progress is None else (lambda lam, it, _n=name: progress(_n, lam, it))
         items.append(solve_combination(model, name, factors, linear_solver=solver, progress=cb,
                                        assembler=assembler))
+        if on_result is not None:
+            on_result(items[-1])
     return Results(model, tuple(items))

@@ -6,8 +6,11 @@ written); 2 bad input or usage, with one line on stderr naming file and key.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import logging
+import signal
 import sys
+import threading
 import time
 from pathlib import Path
 
@@ -131,14 +134,16 @@ def _summary(results) -> None:
                   f"x = {deck['x'] / L:.1f} {u.length}")
 
 
-def _shape(case_path, shaped_path, solver=None) -> bool:
+def _shape(case_path, shaped_path, solver=None, shown_as=None) -> bool:
     """Form-find ``case_path`` into ``shaped_path`` (+ cutting CSV); prints progress and targets.
 
-    Returns False (after a message on stderr) when the shape was not found.
+    ``shown_as`` is the path printed for the shaped case (its final name when
+    ``shaped_path`` is in a staging folder).  Returns False (after a message
+    on stderr) when the shape was not found; nothing is written then.
     """
     from . import read_case
     from .errors import CaseError
-    from .io.case_writer import write_shape_outputs
+    from .io.case_writer import cutting_path, write_shape_outputs
     from .solvers.formfind import ShapeError, find_shape
     spec = read_case(case_path)
     u = spec.units
@@ -159,9 +164,12 @@ def _shape(case_path, shaped_path, solver=None) -> bool:
               "under the permanent loads; length0 are the unstressed lengths that give it.\n"
               + ("[beam_reference] keeps the beams' stress-free geometry and their found rotations.\n"
                  if found.spec.beam_reference else "") + CAUTION)
-    written = write_shape_outputs(shaped_path, found.spec, found.cutting, header)
+    write_shape_outputs(shaped_path, found.spec, found.cutting, header)
+    shown = Path(shown_as if shown_as is not None else shaped_path)
     print(f"shape found in {time.perf_counter() - t0:.2f} s"
           + (f", {found.iterations} iteration(s)" if found.targets else ""))
+    for line in found.log:
+        print(f"  {line}")
     if found.targets:
         print(f"  {'node':<12} {'axis':<4} {'target':>12} {'reached':>12} {'miss':>10}   ({u.length})")
         for t in found.targets:
@@ -169,28 +177,64 @@ def _shape(case_path, shaped_path, solver=None) -> bool:
                   f"{t.reached / u.length_scale:>12.6g} {t.miss / u.length_scale:>10.2e}")
     print(f"  re-solved under the permanent loads it moves at most "
           f"{_fmt(found.largest_movement / u.length_scale, u.length)}")
-    print(f"wrote {written[0]}, {written[1]}")
+    print(f"wrote {shown}, {cutting_path(shown)}")
     return True
 
 
 def cmd_shape(args) -> int:
+    from .io.atomic import check_output_file
+    from .io.case_writer import cutting_path
+    # before any work: a shaped case that cannot be written is a usage error
+    check_output_file(args.output, "the shaped case")
+    check_output_file(cutting_path(args.output), "the cutting table")
     ok = _shape(args.case, args.output, args.solver)
     print("caution: " + CAUTION)
     return 0 if ok else 1
 
 
-def cmd_solve(args, shape_first=False) -> int:
-    from . import load_model, read_case, solve, write_results
-    out = Path(args.output)
-    case = args.case
-    if shape_first and read_case(case).shape is not None:
-        case = out / "shaped.toml"
-        if not _shape(args.case, case, args.solver):
-            print("caution: " + CAUTION)
-            return 1
-    model = load_model(case)
-    t0 = time.perf_counter()
+@contextlib.contextmanager
+def _terminate_as_interrupt():
+    """SIGTERM stops the run as Ctrl-C does, so that what was solved is still written."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
 
+    def stop(signum, frame):
+        raise KeyboardInterrupt
+
+    old = signal.signal(signal.SIGTERM, stop)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, old)
+
+
+def _check_only(model, only, case) -> None:
+    from .errors import CaseError
+    if only is None:
+        return
+    known = [n for n, _ in model.results_to_run()]
+    for name in only:
+        if name not in known:
+            raise CaseError("", f"--only {name}: no result of that name (known: {', '.join(known) or 'none'})",
+                            str(case))
+
+
+def cmd_solve(args, shape_first=False) -> int:
+    from . import load_model, read_case, solve
+    from .errors import CaseError
+    from .io.atomic import ResultFolder
+    from .io.results_io import write_result_files
+    from .results import Results
+    out = Path(args.output)
+    # the output folder is checked before any work, and every input error is
+    # found before anything is written (exit 2, the earlier set untouched)
+    folder = ResultFolder(out).check()
+    shaping = shape_first and read_case(args.case).shape is not None
+    model = None
+    if not shaping:
+        model = load_model(args.case)
+        _check_only(model, args.only, args.case)
     live = sys.stderr.isatty()
 
     def progress(name, lam, it):
@@ -199,19 +243,72 @@ def cmd_solve(args, shape_first=False) -> int:
             print(f"\r  solving {name}: load factor {lam:.3f}, {it} iterations ",
                   end="\n" if lam >= 1.0 else "", file=sys.stderr, flush=True)
 
-    results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
-    written = write_results(results, out)
-    if shape_first:  # `run` adds plots and a report
-        from .io.report import write_report
-        note = f"Shaped first: `{case}` with its cutting table beside it." if case != args.case else ""
-        written += write_report(results, out, case, CAUTION, note)
+    items, stopped, failure = [], False, None
+    with _terminate_as_interrupt(), folder:
+        case = args.case
+        if shaping:
+            staged = folder.staging / "shaped.toml"
+            case = folder.final(staged)
+            if not _shape(args.case, staged, args.solver, shown_as=case):
+                folder.discard()
+                print("caution: " + CAUTION)
+                return 1
+            model = load_model(staged)
+            _check_only(model, args.only, args.case)
+        t0 = time.perf_counter()
+        try:
+            solve(model, names=args.only, progress=progress, linear_solver=args.solver, on_result=items.append)
+        except KeyboardInterrupt:
+            stopped = True
+        except CaseError:
+            raise
+        except Exception as exc:  # a result that raised: keep what was solved before it
+            log.debug("solving failed", exc_info=True)
+            failure = f"{type(exc).__name__}: {exc}"
+        if live and (stopped or failure):
+            print(file=sys.stderr)
+        results = Results(model, tuple(items))
+        wanted = None if args.only is None else set(args.only)
+        missing = [n for n, _ in model.results_to_run() if (wanted is None or n in wanted)
+                   and n not in set(results.names)]
+        what = "interrupted" if stopped else "failed"
+        if missing and not items:
+            folder.discard()
+            print(f"cablefe: {what} while solving {missing[0]}"
+                  + (f" ({failure})" if failure else "") + f"; no result was solved, nothing written to {out}",
+                  file=sys.stderr)
+            print("caution: " + CAUTION)
+            return 130 if stopped else 1
+        extra = None
+        if missing:
+            extra = {"incomplete": {"reason": f"{what} while solving {missing[0]}"
+                                    + (f": {failure}" if failure else ""), "not_solved": missing}}
+        try:
+            write_result_files(results, folder.staging, extra=extra)
+            if shape_first:  # `run` adds plots and a report
+                from .io.report import write_report
+                note = f"Shaped first: `{case}` with its cutting table beside it." if shaping else ""
+                write_report(results, folder.staging, case, CAUTION, note)
+            written = folder.commit()
+        except OSError as exc:
+            folder.discard()
+            print(f"cablefe: {out}: cannot write the results: {exc.strerror or exc}; the folder keeps its "
+                  "earlier files", file=sys.stderr)
+            return 2
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
     _summary(results)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
+    converged = sum(r.converged for r in results.items)
+    if missing:
+        print(f"cablefe: {what} while solving {missing[0]}" + (f" ({failure})" if failure else "")
+              + f"; wrote the {len(results.items)} result(s) solved before it ({converged} converged) "
+              f"to {out}; not solved: {', '.join(missing)} (marked in results.json)", file=sys.stderr)
+        return 130 if stopped else 1
     if not results.all_converged:
         bad = [r.name for r in results.items if not r.converged]
-        print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json)", file=sys.stderr)
+        print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json and in the meshes' field "
+              "data; what converged is written)", file=sys.stderr)
         return 1
     return 0
 

@@ -25,7 +25,7 @@ from pathlib import Path
 import tomli_w
 
 from ..spec import CaseSpec
-from .atomic import atomic_path
+from .atomic import atomic_path, clean_stale_temporaries
 
 
 def cutting_path(shaped_path) -> Path:
@@ -143,6 +143,8 @@ def write_shape_outputs(path, spec: CaseSpec, table, header: str = "") -> tuple[
     comment = "".join(f"# {line}\n" for line in header.splitlines())
     text = tomli_w.dumps(shaped_case_dict(spec))
     rows = cutting_csv_text(table, spec.units)
+    # temporaries of a killed earlier run beside these two files
+    clean_stale_temporaries(path.parent, (path.name, csv_path.name))
     with atomic_path(path) as tmp_case, atomic_path(csv_path) as tmp_csv:
         tmp_case.write_text(comment + text, encoding="utf-8")
         tmp_csv.write_text(rows, encoding="utf-8")

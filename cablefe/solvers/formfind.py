@@ -158,6 +158,8 @@ class ShapeResult:
     largest_movement : largest node displacement when the shaped model is
         solved again under the permanent loads, m
     cutting : CuttingTable
+    log : lines describing how the shape was reached (first shape, regularised
+        search, final iterations), for the command line
     """
 
     spec: CaseSpec
@@ -168,6 +170,7 @@ class ShapeResult:
     iterations: int
     largest_movement: float
     cutting: CuttingTable
+    log: tuple[str, ...] = ()
 
 
 # ---------------------------------------------------------------------------
