@@ -149,7 +149,7 @@ class Assembler:
             strain = lam * loads.strain[f]
             if f == "bar":
                 out[f] = bar.response(xi, xj, p["unstressed_length"] * (1.0 + strain), p["EA"],
-                                      p["tension_only"], want_tangent)
+                                      p["tension_only"], want_tangent, p.get("slack_stiffness"))
             elif f == "cable":
                 weight = lam * loads.weight[f]
                 r = catenary.response(xi, xj, p["unstressed_length"] * (1.0 + strain), p["EA"],
