@@ -29,6 +29,22 @@ Two methods, chosen by ``[shape] method``:
     :func:`length_sensitivity`).  The steps are least-squares solutions
     (minimum-norm when there are more unknowns than targets).
 
+    From a rough sketch.  A drawing that is only roughly right (nodes off
+    by a metre, no pretension, tension-only members at zero strain) often
+    has no equilibrium for Newton's method to start from: members without
+    tension have no stiffness across them.  Then the adjusted members are
+    first shortened to a small strain (:data:`START_STRAIN`) and the
+    permanent loads are applied along their path, which brings the sketch
+    into a stable, tensioned equilibrium.  Every step is held in a trust
+    region on the target miss (neither the predicted target movement nor
+    any length change may exceed the radius; a step that does not lower the
+    miss is retried smaller, a good one widens the region).  While
+    searching, slack tension-only bars keep :data:`SLACK_STIFFNESS` of their
+    EA so that one slack hanger does not make the structure a mechanism;
+    once the targets are met the exact model takes over, and the shape is
+    accepted only in its equilibrium.  :attr:`ShapeResult.log` says how the
+    shape was reached and how many iterations each stage took.
+
 Both methods end the same way: the found coordinates and unstressed lengths
 are turned into a case (:func:`shaped_case`), whose model -- loads rebuilt on
 the found geometry -- is solved under the permanent loads from its own
