@@ -189,8 +189,12 @@ def _result_section(results, name, entry, units, figure) -> str:
     if reac:
         vals = round_relative(np.array([r for _, r in reac]))
         up = [nid for (nid, r), v in zip(reac, vals) if v[2] < 0]
-        parts.append(_table(["support", f"Rx [{units.force}]", f"Ry [{units.force}]", f"Rz [{units.force}]"],
-                            [[_e(nid)] + [fmt(x, 6) for x in v] for (nid, _), v in zip(reac, vals)]))
+        head = ["support", f"Rx [{units.force}]", f"Ry [{units.force}]", f"Rz [{units.force}]"]
+        rows = [[_e(nid)] + [fmt(x, 6) for x in v] for (nid, _), v in zip(reac, vals) if np.any(v)]
+        zero = [nid for (nid, _), v in zip(reac, vals) if not np.any(v)]
+        parts.append("<h4>Support reactions</h4>" + _table(head, rows))
+        if zero:
+            parts.append(f"<p class=muted>Zero reaction (to the rounding of the largest): {_e(', '.join(zero))}.</p>")
         if up:
             parts.append(f"<p>Supports pulling down (hold-down or uplift): {_e(', '.join(up))}.</p>")
     for key, title in (("equilibrium", "Equilibrium check"), ("stability", "Stability")):
@@ -399,5 +403,7 @@ def write_report(results, out, case_path, caution: str, design=None) -> list[Pat
         figures["__envelope__"] = plot_tension_envelope(results, out / "tension-envelope.png")
     if design is not None and design.outcome.governing:
         figures["__utilization__"] = plot_utilization(design.outcome, out / "utilization.png")
+    from ..io.lookup_io import write_member_lookup
+    lookup = write_member_lookup(results.model, out)
     write_text(out / "report.html", report_html(results, out, case_path, caution, figures))
-    return list(figures.values()) + [out / "report.html"]
+    return list(figures.values()) + [lookup, out / "report.html"]
