@@ -59,7 +59,8 @@ def _parser() -> argparse.ArgumentParser:
                    help="sparse linear solver backend (default: [analysis] solver or auto)")
 
     for name, text in (("solve", "nonlinear static analysis of every combination"),
-                       ("run", "everything the case asks for: shape (if [shape]), solve, further studies")):
+                       ("run", "everything the case asks for: shape (if [shape]), solve, further studies, "
+                               "design checks and sizing (if [design]), report.html")):
         s = sub.add_parser(name, help=text, description=text, epilog=EXAMPLES[name],
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         s.add_argument("case", help="case file (TOML)")

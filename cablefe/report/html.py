@@ -301,8 +301,11 @@ def _design(out: Path, design_data, figure) -> str:
         return [_e(k), f'<span class="{cls}">{text}</span>', _e(v.get("check")), _e(v.get("result")),
                 _e(v.get("section"))]
     header = ["member", "utilization", "governing check", "result", "section"]
+    deck_fail = sum(1 for d in design_data.get("deck", {}).values() for c in d.values()
+                    if c.get("utilization") is None or c["utilization"] > 1)
     parts.append(f"<p><b>{len(members)}</b> members checked; <b class={'fail' if fails else 'ok'}>{len(fails)}</b> "
-                 f"do not pass (utilization above 1 or slack).</p>")
+                 f"do not pass (utilization above 1 or slack)"
+                 + (f"; <b class=fail>{deck_fail}</b> deck deflection check(s) above 1" if deck_fail else "") + ".</p>")
     parts.append("<h3>Governing members</h3>" + _table(header, [row(k, v) for k, v in ordered[:15]]))
     parts.append(f"<details><summary>All {len(ordered)} checked members, sorted by utilization</summary>"
                  + _table(header, [row(k, v) for k, v in ordered]) + "</details>")

@@ -66,7 +66,9 @@ def summary_lines(results, design=None) -> list[str]:
         worst = o.largest
         lines.append("design checks: " + (f"governing utilization {'slack' if not math.isfinite(worst.utilization) else f'{worst.utilization:.3f}'} "
                                           f"({worst.check}) in {worst.item}, result {worst.result}" if worst else "no member checked")
-                     + f"; {sum(1 for c in o.governing.values() if not c.utilization <= 1)} member(s) fail")
+                     + f"; {sum(1 for c in o.governing.values() if not c.utilization <= 1)} member(s) fail"
+                     + f"; {sum(1 for c in o.checks if c.check.startswith('deflection') and not c.utilization <= 1)}"
+                       " deck deflection check(s) fail")
         if o.placeholders:
             lines.append("  PLACEHOLDER factors (defaults, set them from the governing code): "
                          + ", ".join(f"{k} = {o.factors[k]:g}" for k in o.placeholders))
