@@ -198,3 +198,20 @@ def test_csv_catalogue_beside_the_case_is_read_with_header_units(tmp_path):
     with pytest.raises(CaseError) as err:
         parse_case(data, source=str(tmp_path / "case.toml"))
     assert err.value.key == "design.size[0].catalogue" and "areas" in err.value.message
+
+
+def test_plots_draw_no_magnified_round_off_and_face_the_sway():
+    from cablefe.report.plots import choose_view, magnification
+    model = cablefe.build_model(parse_case(TWO_HANGERS))
+    c = model.coordinates
+    # round-off-sized movement (1e-13 m on a 10 m model) is not magnified
+    scale, biggest = magnification(model, c + 1e-13)
+    assert scale == 0.0 and biggest > 0
+    # a 10 mm movement on a 10 m model is drawn at 5 % of the size with a round factor: 0.5 / 0.01 = 50
+    moved = c.copy()
+    moved[:, 2] -= 0.01
+    assert magnification(model, moved)[0] == 50.0
+    # taller than wide: a mast, seen in the vertical plane of its largest sway
+    sway = np.zeros_like(c)
+    sway[:, 1] = 0.2
+    assert choose_view(model, sway)[:2] == ((1, 2), "mast")
