@@ -193,6 +193,9 @@ def cmd_solve(args, shape_first=False) -> int:
     _summary(results, design)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
+    if design is not None and not design.settled:
+        print(f"cablefe: sizing: {design.outcome.sizing['message']} (see design.json)", file=sys.stderr)
+        return 1
     if not results.all_converged:
         bad = [r.name for r in results.items if not r.converged]
         print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json)", file=sys.stderr)

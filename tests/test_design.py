@@ -150,7 +150,7 @@ def test_sizing_matches_brute_force_over_the_catalogue():
     names = [s.name for s in spec.catalogues["strands"].sections]
     passing = []
     for k in range(len(names)):
-        s, r = _analyse(apply_sections(spec, [k]), results.names)
+        s, r, _ = _analyse(apply_sections(spec, [k]), results.names)
         u = run_checks(s.design, r)
         passing.append(all(c.utilization <= 1 for c in u.checks if c.check == "cable"))
     brute = names[passing.index(True)]
@@ -215,3 +215,33 @@ def test_plots_draw_no_magnified_round_off_and_face_the_sway():
     sway = np.zeros_like(c)
     sway[:, 1] = 0.2
     assert choose_view(model, sway)[:2] == ((1, 2), "mast")
+
+
+def test_sizing_says_when_the_choice_oscillates(monkeypatch):
+    # A selection that comes back to an earlier choice (stiffness moving load
+    # back and forth between groups) must stop, take the larger section of
+    # the cycle and say so, not loop until the iteration limit.
+    from cablefe.design import sizing
+    spec = parse_case(SIZED)
+    results = cablefe.solve(cablefe.build_model(spec))
+    picks = iter([[0], [1], [2], [1], [2], [1], [2]])
+    monkeypatch.setattr(sizing, "select", lambda s, r: (next(picks), [True]))
+    monkeypatch.setattr(sizing, "_analyse", lambda s, names, *a: (s, results, None))
+    run = sizing.size_members(spec, results)
+    assert not run.settled
+    assert "oscillates" in run.history["message"]
+    assert [h["H*"] for h in run.history["history"]] == ["S20", "S30", "S45", "S45"]
+
+
+def test_study_envelope_is_checked_like_a_result():
+    # envelope values (case units, kN) enter the same definitions:
+    # cable u = 2.5 * 60 / 200; slack u = 0.2 * T_perm / T_min = 0.2 * 30 / 1.5
+    results = _solve(TWO_HANGERS)
+    env = {"name": "crowd", "kind": "patch", "base": "permanent",
+           "members": {"H1": {"max_tension": 60.0, "min_tension": 1.5, "slack": False}}}
+    out = run_checks(results.model.spec.design, results, {"crowd": env})
+    by = {(c.item, c.check, c.result): c for c in out.checks}
+    assert_allclose(by["H1", "cable", "crowd"].utilization, 2.5 * 60 / 200, rtol=1e-12)
+    assert_allclose(by["H1", "slack", "crowd"].utilization, 0.2 * 30 / 1.5, rtol=1e-9)
+    assert ("H2", "cable", "crowd") not in by          # not in the envelope: nothing invented
+    assert "crowd" in out.results

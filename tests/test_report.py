@@ -143,3 +143,32 @@ def test_report_renders_in_a_headless_browser(sized_run, tmp_path):
     assert run.returncode == 0, run.stderr[-2000:]
     data = shot.read_bytes()
     assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 50_000   # a rendered page, not a blank one
+
+
+def test_report_shows_study_envelopes_and_modes_when_present(tmp_path):
+    import cablefe
+    from cablefe.report.html import write_report
+    results = cablefe.solve(cablefe.load_model(CASES / "hanger_deck.toml"))
+    cablefe.write_results(results, tmp_path)
+    study = tmp_path / "studies" / "crowd"
+    study.mkdir(parents=True)
+    (study / "envelope.json").write_text(json.dumps({
+        "name": "crowd", "kind": "patch", "base": "permanent", "solves": 4,
+        "members": {"H5": {"max_tension": 31.2, "min_tension": 4.1, "slack": False,
+                           "governing": {"max": {"intervals": [[0, 30]]}, "min": {"intervals": [[30, 60]]}}}},
+        "nodes": {"D5": {"max_displacement": [0, 0, 0.01], "min_displacement": [0, 0, -0.2]}}}))
+    write_report(results, tmp_path, "case.toml", CAUTION)
+    shutil.copy(tmp_path / "tension-envelope.png", study / "envelope.png")
+    shutil.copy(tmp_path / "tension-envelope.png", tmp_path / "modes.png")
+    (tmp_path / "modes.json").write_text(json.dumps({
+        "about": "permanent", "total_mass": 12000.0,
+        "modes": [{"number": 1, "frequency": 1.9, "period": 0.526, "generalised_mass": 1.0,
+                   "effective_mass_ratio": [0, 0, 0.7], "kind": "vertical",
+                   "pedestrians": {"critical": True, "acceleration": 0.61, "comfort_class": 2}}]}))
+    write_report(results, tmp_path, "case.toml", CAUTION)
+    text = (tmp_path / "report.html").read_text()
+    studies = text[text.index('id="studies"'):text.index('id="modes"')]
+    modes = text[text.index('id="modes"'):text.index('id="design"')]
+    assert "crowd" in studies and "31.2" in studies and studies.count("<img") == 1
+    assert "1.9" in modes and "critical" in modes and "0.61" in modes and modes.count("<img") == 1
+    assert "no [design] table" in text

@@ -387,10 +387,16 @@ def run_checks(design: DesignSpec, results, envelopes: Mapping[str, Mapping] | N
         raw_studies = [raw_studies]
     lanes = {s.get("name"): lane_nodes(model, s) for s in raw_studies if isinstance(s, Mapping)}
     deck = report_deck_nodes(model)
-    data = [result_data(results, n) for n in names]
+    skipped = [n for n in names if not results[n].converged]
+    data = [result_data(results, n) for n in names if n not in skipped]
     data += [envelope_data(model, {**envelopes[s], "name": s}, model.spec.units, lanes.get(s)) for s in studies]
     if deck is None:
         lane = next((v for v in lanes.values() if v is not None), None)
         if lane is not None:
             deck = lane   # the study lane is the deck of every result
-    return check_design(design, model, data, permanent, deck)
+    outcome = check_design(design, model, data, permanent, deck)
+    if skipped:
+        from dataclasses import replace
+        outcome = replace(outcome, notes=outcome.notes + tuple(
+            f"{n} did not converge: not checked" for n in skipped))
+    return outcome

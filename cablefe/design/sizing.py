@@ -37,6 +37,7 @@ class SizingRun:
     results: object
     settled: bool
     history: dict
+    cutting: object = None       # cutting table of the re-shaped sized case, or None
 
 
 def group_members(spec: CaseSpec) -> list[list[str]]:
@@ -94,13 +95,15 @@ def apply_sections(spec: CaseSpec, choice: list[int]) -> CaseSpec:
 
 
 def _analyse(spec: CaseSpec, names, linear_solver=None, progress=None):
-    """Shape (when the case has [shape]) and solve; returns (spec, Results)."""
+    """Shape (when the case has [shape]) and solve; returns (spec, Results, cutting table or None)."""
     from .. import build_model, solve
+    cutting = None
     if spec.shape is not None:
         from ..solvers.formfind import find_shape
-        spec = find_shape(spec, linear_solver=linear_solver).spec
+        found = find_shape(spec, linear_solver=linear_solver)
+        spec, cutting = found.spec, found.cutting
     model = build_model(spec)
-    return spec, solve(model, names=names, progress=progress, linear_solver=linear_solver)
+    return spec, solve(model, names=names, progress=progress, linear_solver=linear_solver), cutting
 
 
 def select(spec: CaseSpec, results) -> tuple[list[int], list[bool]]:
@@ -146,7 +149,14 @@ def size_members(spec: CaseSpec, results, envelopes=None, linear_solver=None, pr
     names = results.names
     history: list[list[int]] = []
     settled, message = False, ""
-    current_spec, current = spec, results
+    current_spec, current, cutting = spec, results, None
+
+    def sec_name(g, c):
+        return spec.catalogues[design.size[g].catalogue].sections[c].name
+    if not results.all_converged:
+        info = {"settled": False, "message": "a result of the case as given did not converge: no sizing",
+                "groups": labels, "history": [], "final": {}, "analyses": 0}
+        return SizingRun(spec, results, False, info)
     choice, passes = select(spec, results)
     for it in range(design.max_sizing_iterations):
         if history and choice == history[-1]:
@@ -159,18 +169,20 @@ def size_members(spec: CaseSpec, results, envelopes=None, linear_solver=None, pr
                 f"{lab}: {', '.join(sorted({spec.catalogues[design.size[g].catalogue].sections[c[g]].name for c in cycle}))}"
                 for g, lab in enumerate(labels)) + ": the larger section of each group is taken")
             history.append(choice)
-            current_spec, current = _analyse(apply_sections(spec, choice), names, linear_solver, progress)
+            current_spec, current, cutting = _analyse(apply_sections(spec, choice), names, linear_solver, progress)
             _, passes = select(current_spec, current)
             break
         history.append(choice)
         log.info("sizing iteration %d: %s", it + 1, choice)
-        current_spec, current = _analyse(apply_sections(spec, choice), names, linear_solver, progress)
+        current_spec, current, cutting = _analyse(apply_sections(spec, choice), names, linear_solver, progress)
+        if not current.all_converged:
+            message = (f"the analysis with {', '.join(sec_name(g, c) for g, c in enumerate(choice))} did not "
+                       "converge: sizing stopped")
+            break
         choice, passes = select(current_spec, current)
     else:
         message = f"no settled choice after {design.max_sizing_iterations} analyses ([design] max_sizing_iterations)"
     final = history[-1] if history else choice
-    def sec_name(g, c):
-        return spec.catalogues[design.size[g].catalogue].sections[c].name
     hist = [{lab: sec_name(g, c[g]) for g, lab in enumerate(labels)} for c in history]
     # does the last analysed choice pass the strength checks of its own forces?
     own, own_pass = select(current_spec, current)
@@ -182,13 +194,18 @@ def size_members(spec: CaseSpec, results, envelopes=None, linear_solver=None, pr
         message += "; study envelopes are those of the case before sizing (run the studies on sized.toml)"
     info = {"settled": settled, "message": message, "groups": labels, "history": hist, "final": final_info,
             "analyses": len(history)}
-    return SizingRun(current_spec, current, settled, info)
+    return SizingRun(current_spec, current, settled, info, cutting)
 
 
-def write_sized_case(path, spec: CaseSpec, case_path, caution: str):
-    """Write the complete sized case (shaped again when the case has [shape])."""
-    from ..io.case_writer import write_shaped_case
+def write_sized_case(path, spec: CaseSpec, case_path, caution: str, cutting=None):
+    """Write the complete sized case (shaped again when the case has [shape]).
+
+    A re-shaped case gets its cutting table beside it (``sized-cutting.csv``).
+    """
+    from ..io.case_writer import write_shape_outputs, write_shaped_case
     header = (f"Sized by cablefe from {case_path}: each [[design.size]] group carries the catalogue section\n"
               "chosen by the design checks" + (", and the case is shaped again with it.\n" if spec.shape else ".\n")
               + caution)
+    if cutting is not None:
+        return write_shape_outputs(path, spec, cutting, header)[0]
     return write_shaped_case(path, spec, header)

@@ -39,7 +39,7 @@ def design_stage(results, out, caution: str, case_path=None, linear_solver=None,
         from .sizing import size_members, write_sized_case
         run = size_members(spec, results, envelopes=envelopes, linear_solver=linear_solver, progress=progress)
         results, settled, sizing = run.results, run.settled, run.history
-        sized_path = write_sized_case(out / "sized.toml", run.spec, case_path, caution)
+        sized_path = write_sized_case(out / "sized.toml", run.spec, case_path, caution, run.cutting)
     outcome = run_checks(spec.design if sizing is None else results.model.spec.design, results, envelopes)
     if sizing is not None:
         outcome = replace(outcome, sizing=sizing)

@@ -28,6 +28,9 @@ from ..io.results_io import safe_name
 from .groups import fmt, id_prefix, member_groups, round_relative, structure_nodes
 from .plots import plot_result, plot_tension_envelope, plot_utilization
 
+#: displacements below this share of the model's size are round-off
+ROUND_OFF = 1e-9
+
 SECTIONS = ("summary", "caution", "form-finding", "results", "studies", "modes", "design", "sizing")
 
 STYLE = """
@@ -106,7 +109,10 @@ def _summary(results, case_path, data) -> str:
 
 
 def _cutting(out: Path, units) -> str:
-    path = out / "shaped-cutting.csv"
+    path = out / "sized-cutting.csv"
+    shaped = "sized.toml" if path.is_file() else "shaped.toml"
+    if not path.is_file():
+        path = out / "shaped-cutting.csv"
     if not path.is_file():
         return '<p class="muted">The case has no [shape] table: no form-finding in this run.</p>'
     with open(path, newline="", encoding="utf-8") as fh:
@@ -129,7 +135,7 @@ def _cutting(out: Path, units) -> str:
         t[0] += 1
         t[1] += np.array([0.0] + [float(x) for x in r[1:]])
     tot_rows = [[_e(fam), str(n)] + [f"{v[k]:.{digits}f}" for k in lengths] for fam, (n, v) in totals.items()]
-    text = (f"<p>Shaped case: <code>shaped.toml</code>; lengths rounded to 0.1 mm "
+    text = (f"<p>Shaped case: <code>{shaped}</code>; lengths rounded to 0.1 mm "
             f"(fabrication precision), tension in {_e(units.force)}. Full precision in <code>{path.name}</code>.</p>")
     text += "<h3>Totals per cable family (id prefix)</h3>" + _table(
         ["family", "members"] + [header[k] for k in lengths], tot_rows, left=1)
@@ -161,9 +167,14 @@ def _result_section(results, name, entry, units, figure) -> str:
             v = math.sqrt(sum(x * x for x in d))
             if v > best:
                 best, where = v, (nid, d)
-    if where:
+    size = float(np.ptp(m.coordinates, axis=0).max()) / L if len(m.coordinates) else 0.0
+    if where and best <= ROUND_OFF * size:
+        parts.append(f"<p>Largest displacement of the {what}: none beyond round-off "
+                     f"({best:.1e} {_e(units.length)}, below {ROUND_OFF:g} of the model's size).</p>")
+    elif where:
+        shown = round_relative(np.asarray(where[1]), digits=4)
         parts.append(f"<p>Largest displacement of the {what}: <b>{fmt(best)} {_e(units.length)}</b> at node "
-                     f"{_e(where[0])} (ux, uy, uz = {', '.join(fmt(x) for x in where[1])} {_e(units.length)}).</p>")
+                     f"{_e(where[0])} (ux, uy, uz = {', '.join(fmt(x) for x in shown)} {_e(units.length)}).</p>")
     if "deck" in entry:
         dk = entry["deck"]
         parts.append(f"<p>Largest deck deflection {fmt(abs(dk['vertical']))} {_e(units.length)} "

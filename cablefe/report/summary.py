@@ -33,8 +33,12 @@ def summary_lines(results, design=None) -> list[str]:
         if len(nodes):
             d = np.linalg.norm(disp[nodes], axis=1)
             k = int(nodes[int(np.argmax(d))])
-            lines.append(f"    largest displacement of the {what} {_f(float(d.max()) / L, u.length)} at node "
-                         f"{m.node_ids[k]}")
+            size = float(np.ptp(m.coordinates, axis=0).max())
+            if d.max() <= 1e-9 * size:   # round-off, not a movement
+                lines.append(f"    largest displacement of the {what}: none beyond round-off ({d.max() / L:.1e} {u.length})")
+            else:
+                lines.append(f"    largest displacement of the {what} {_f(float(d.max()) / L, u.length)} at node "
+                             f"{m.node_ids[k]}")
         deck = results.deck_deflection(res.name)
         if deck is not None:
             lines.append(f"    largest deck deflection {abs(deck['vertical']) / L:.3f} {u.length} "
