@@ -264,6 +264,7 @@ def check_design(design: DesignSpec, model: Model, data: list[ResultData], perma
     if permanent is None:
         notes.append("no permanent result (set [design] permanent): slack margins are not checked and "
                      "deflections are measured from the case's coordinates")
+    tension_only = np.array([p[2] for p in props], dtype=bool)
     cables = [k for k in checked if props[k][2]]
     beams = [k for k in checked if model.members[k].type == "beam"]
     for k in checked:
@@ -292,10 +293,9 @@ def check_design(design: DesignSpec, model: Model, data: list[ResultData], perma
             checks.append(Check(ids[k], "cable", d.name, u, design.cable_factor * max(d.max_tension[k], 0.0),
                                 sec.breaking_load, "force", sec.name))
         # tension-only: slack margin, and slackening always reported
-        loose = [ids[k] for k in cables if ok[k] and (d.slack[k] or d.min_tension[k] <= 0.0)]
-        loose += [ids[k] for k, m in enumerate(model.members)
-                  if k not in set(cables) and props[k][2] and ok[k] and (d.slack[k] or d.min_tension[k] <= 0.0)]
-        slack[d.name] = tuple(loose)
+        # every tension-only member, checked or not
+        gone = ok & (d.slack | (d.min_tension <= 0.0)) & tension_only
+        slack[d.name] = tuple(ids[k] for k in np.flatnonzero(gone))
         if t_perm is not None:
             for k in cables:
                 if not ok[k] or not np.isfinite(d.min_tension[k]):
