@@ -102,6 +102,10 @@ def cmd_check(args) -> int:
     runs = model.results_to_run()
     print(f"results to solve: {', '.join(n for n, _ in runs) or 'none'}")
     print(f"form-finding: {spec.shape.method if spec.shape else 'none'}")
+    if spec.design is not None:
+        d = spec.design
+        print(f"design checks: on {', '.join(d.results)}; {len(d.size)} size group(s)"
+              + (f"; PLACEHOLDER factors: {', '.join(d.placeholders)}" if d.placeholders else ""))
     return 0
 
 

@@ -172,3 +172,29 @@ def test_report_shows_study_envelopes_and_modes_when_present(tmp_path):
     assert "crowd" in studies and "31.2" in studies and studies.count("<img") == 1
     assert "1.9" in modes and "critical" in modes and "0.61" in modes and modes.count("<img") == 1
     assert "no [design] table" in text
+
+
+def test_reactions_lose_round_off_and_guy_sag_nodes_do_not_count_as_the_structure():
+    import cablefe
+    from cablefe.io.case import parse_case
+    from cablefe.report.groups import round_relative, structure_nodes
+    # six significant digits of the largest value (300.000): round-off goes, 12.3456789 keeps 0.001
+    r = round_relative([300.0, 1e-13, -2.5e-12, 12.3456789])
+    assert r[1] == 0.0 and r[2] == 0.0 and not np.signbit(r[2])
+    np.testing.assert_allclose(r[[0, 3]], [300.0, 12.346], rtol=1e-15)
+    # a mast (beam) held by a guy divided into sag nodes: the sag nodes are not "the structure"
+    data = {"materials": {"s": {"E": "200 GPa", "unit_weight": "78.5 kN/m^3"}},
+            "sections": {"g": {"material": "s", "area": "100 mm^2"},
+                         "m": {"material": "s", "area": "5000 mm^2", "Iy": "1e8 mm^4", "Iz": "1e8 mm^4", "J": "2e8 mm^4"}},
+            "nodes": {"B": [0, 0, 0], "T": [0, 0, 20], "A": [15, 0, 0]},
+            "supports": {"B": "all", "A": "pin"},
+            "members": [{"id": "M", "type": "beam", "nodes": ["B", "T"], "section": "m"},
+                        {"id": "G", "type": "cable", "nodes": ["T", "A"], "section": "g", "divide": 4}],
+            "loads": [{"case": "w", "self_weight": True}]}
+    model = cablefe.build_model(parse_case(data))
+    nodes, what = structure_nodes(model)
+    assert what == "structure" and sorted(model.node_ids[k] for k in nodes) == ["A", "B", "T"]
+    # a single cable between two anchors: its interior nodes are the structure
+    lone = cablefe.build_model(parse_case({**data, "members": data["members"][1:], "supports": {"T": "all", "A": "pin"},
+                                           "nodes": {"T": [0, 0, 20], "A": [15, 0, 0]}}))
+    assert len(structure_nodes(lone)[0]) == len(lone.node_ids)

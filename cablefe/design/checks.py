@@ -381,12 +381,17 @@ def run_checks(design: DesignSpec, results, envelopes: Mapping[str, Mapping] | N
     envelopes = envelopes or {}
     names, studies = select_targets(design, results.names, list(envelopes))
     perm_name = permanent_result(design, model, results.names)
+    if perm_name is not None and not results[perm_name].converged:
+        perm_name = None     # a state that was not reached is no reference (check_design notes it)
     permanent = result_data(results, perm_name) if perm_name is not None else None
     raw_studies = (model.spec.raw or {}).get("studies", [])
     if isinstance(raw_studies, Mapping):
         raw_studies = [raw_studies]
     lanes = {s.get("name"): lane_nodes(model, s) for s in raw_studies if isinstance(s, Mapping)}
     deck = report_deck_nodes(model)
+    wanted = [s.get("name") for s in raw_studies if isinstance(s, Mapping) and isinstance(s.get("name"), str)]
+    _, named = select_targets(design, [], wanted)
+    missing = [s for s in named if s not in envelopes]
     skipped = [n for n in names if not results[n].converged]
     data = [result_data(results, n) for n in names if n not in skipped]
     data += [envelope_data(model, {**envelopes[s], "name": s}, model.spec.units, lanes.get(s)) for s in studies]
@@ -395,8 +400,9 @@ def run_checks(design: DesignSpec, results, envelopes: Mapping[str, Mapping] | N
         if lane is not None:
             deck = lane   # the study lane is the deck of every result
     outcome = check_design(design, model, data, permanent, deck)
-    if skipped:
+    extra = tuple(f"{n} did not converge: not checked" for n in skipped)
+    extra += tuple(f"study {s}: no envelope.json found, not checked" for s in missing)
+    if extra:
         from dataclasses import replace
-        outcome = replace(outcome, notes=outcome.notes + tuple(
-            f"{n} did not converge: not checked" for n in skipped))
+        outcome = replace(outcome, notes=outcome.notes + extra)
     return outcome

@@ -28,7 +28,8 @@ def structure_nodes(model) -> tuple[np.ndarray, str]:
 
     The ``[report] deck`` nodes when given; otherwise every node except the
     interior nodes of cables (a guy's sag node moves far more than the
-    structure it holds and would hide the structure's own displacement).
+    structure it holds and would hide the structure's own displacement),
+    unless only supported nodes would be left (a cable between two anchors).
     """
     deck = report_deck_nodes(model)
     if deck is not None:
@@ -38,7 +39,10 @@ def structure_nodes(model) -> tuple[np.ndarray, str]:
         if mem.type == "cable":
             inner.update(mem.node_ids[1:-1])
     keep = np.array([k for k, n in enumerate(model.node_ids) if n not in inner], dtype=np.int64)
-    if not len(keep):
+    supported = model.spec.supports
+    if not len(keep) or all(model.node_ids[k] in supported for k in keep):
+        # cables between supports only (a single span, a net on a rigid
+        # edge): their interior nodes are the structure
         keep = np.arange(len(model.node_ids))
     return keep, "structure"
 
