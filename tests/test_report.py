@@ -81,14 +81,14 @@ def test_design_outputs_and_meshes(sized_run):
     assert design["placeholders"] == ["cable_factor", "min_tension", "deflection_limit", "yield_factor"]
     assert design["sizing"]["final"]["H*"]["passes"]
     hangers = {k: v for k, v in design["members"].items() if k.startswith("H")}
-    assert len(hangers) == 11 and all(0 < v["utilization"] <= 1 for v in hangers.values())
+    assert len(hangers) == 15 and all(0 < v["utilization"] <= 1 for v in hangers.values())
     # governing cable check, against its definition from the written numbers
     h = hangers["H1"]["checks"]["cable"]
     results = json.loads((sized_run / "results.json").read_text())["results"]
     tmax = max(r["members"]["H1"]["max_tension"] for r in results.values())
     assert h["utilization"] == pytest.approx(design["factors"]["cable_factor"] * tmax / h["capacity"], rel=1e-12)
     rows = list(csv.DictReader(open(sized_run / "design.csv")))
-    assert {r["check"] for r in rows} >= {"cable", "slack", "deflection-down", "deflection-up"}
+    assert {r["check"] for r in rows} >= {"cable", "slack", "stress", "deflection-down", "deflection-up"}
     mesh = meshio.read(sized_run / "crowd-left.vtu")
     util = mesh.cell_data["utilization"][0]
     lookup = list(csv.DictReader(open(sized_run / "members.csv")))

@@ -62,9 +62,10 @@ def _img(path: Path, alt: str) -> str:
 
 
 def _table(header, rows, left=1) -> str:
-    """HTML table; the first ``left`` columns are left-aligned text."""
-    h = "".join(f'<th class="{"l" if k < left else ""}">{_e(c)}</th>' for k, c in enumerate(header))
-    body = "".join("<tr>" + "".join(f'<td class="{"l" if k < left else ""}">{c}</td>' for k, c in enumerate(r))
+    """HTML table; the first ``left`` columns (or the columns in the set ``left``) are left-aligned text."""
+    lefts = set(range(left)) if isinstance(left, int) else set(left)
+    h = "".join(f'<th class="{"l" if k in lefts else ""}">{_e(c)}</th>' for k, c in enumerate(header))
+    body = "".join("<tr>" + "".join(f'<td class="{"l" if k in lefts else ""}">{c}</td>' for k, c in enumerate(r))
                    + "</tr>" for r in rows)
     return f"<table><thead><tr>{h}</tr></thead><tbody>{body}</tbody></table>"
 
@@ -287,8 +288,9 @@ def _design(out: Path, design_data, figure) -> str:
     parts = []
     ph = set(design_data.get("placeholders", []))
     rows = [[_e(k), fmt(v), ('<span class="placeholder">placeholder default</span>' if k in ph else "set in the case"),
-             _e(design_data.get("factor_meaning", {}).get(k, ""))] for k, v in design_data.get("factors", {}).items()]
-    parts.append(_table(["factor", "value", "origin", "meaning"], rows, left=1))
+             _e(design_data.get("factor_meaning", {}).get(k, "").split(" (PLACEHOLDER")[0])]
+            for k, v in design_data.get("factors", {}).items()]
+    parts.append(_table(["factor", "value", "origin", "meaning"], rows, left={0, 2, 3}))
     if ph:
         parts.append('<p class="caution">Factors marked <span class="placeholder">placeholder default</span> are '
                      "not design values: set them from the governing code; the results must be checked by a "
@@ -317,9 +319,9 @@ def _design(out: Path, design_data, figure) -> str:
     parts.append(f"<p><b>{len(members)}</b> members checked; <b class={'fail' if fails else 'ok'}>{len(fails)}</b> "
                  f"do not pass (utilization above 1 or slack)"
                  + (f"; <b class=fail>{deck_fail}</b> deck deflection check(s) above 1" if deck_fail else "") + ".</p>")
-    parts.append("<h3>Governing members</h3>" + _table(header, [row(k, v) for k, v in ordered[:15]]))
+    parts.append("<h3>Governing members</h3>" + _table(header, [row(k, v) for k, v in ordered[:15]], left={0, 2, 3, 4}))
     parts.append(f"<details><summary>All {len(ordered)} checked members, sorted by utilization</summary>"
-                 + _table(header, [row(k, v) for k, v in ordered]) + "</details>")
+                 + _table(header, [row(k, v) for k, v in ordered], left={0, 2, 3, 4}) + "</details>")
     if figure is not None and Path(figure).is_file():
         parts.append(_img(Path(figure), "governing utilization"))
     deck = design_data.get("deck", {})
