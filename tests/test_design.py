@@ -245,3 +245,21 @@ def test_study_envelope_is_checked_like_a_result():
     assert_allclose(by["H1", "slack", "crowd"].utilization, 0.2 * 30 / 1.5, rtol=1e-9)
     assert ("H2", "cable", "crowd") not in by          # not in the envelope: nothing invented
     assert "crowd" in out.results
+
+
+def test_sizing_marks_a_group_that_fails_a_check_it_does_not_select_for():
+    # H2's live tension is a tenth of its permanent one (2 of 20 kN): with
+    # min_tension = 0.2 its slack margin fails whatever its section, and the
+    # sized group must say so rather than report a pass.
+    from cablefe.design.sizing import with_final_checks
+    data = {**TWO_HANGERS, "catalogues": SIZED["catalogues"],
+            "design": {**TWO_HANGERS["design"], "size": [{"members": "H*", "catalogue": "strands"}]}}
+    spec = parse_case(data)
+    run = size_members(spec, cablefe.solve(cablefe.build_model(spec)))
+    assert run.settled and run.history["final"]["H*"]["passes"]     # strength alone passes
+    # strength: 2.5 x 40 kN = 100 kN of breaking load: S60 has 90 kN, S80 has 120 kN
+    # (statically determinate: the tension does not depend on the section)
+    assert run.history["final"]["H*"]["section"] == "S80"
+    info = with_final_checks(run.history, run_checks(run.spec.design, run.results), run.spec)
+    assert not info["final"]["H*"]["passes"] and info["final"]["H*"]["checks_failing"] == ["slack"]
+    assert "does not select for" in info["message"]

@@ -197,6 +197,27 @@ def size_members(spec: CaseSpec, results, envelopes=None, linear_solver=None, pr
     return SizingRun(current_spec, current, settled, info, cutting)
 
 
+def with_final_checks(info: dict, outcome, spec: CaseSpec) -> dict:
+    """The sizing history with each group's ``passes`` from every check of its members.
+
+    Selection looks at strength; a group whose members still fail another
+    check (slack margin) is marked here and named in the message.
+    """
+    info = {**info, "final": {k: dict(v) for k, v in info.get("final", {}).items()}}
+    failing = []
+    for lab, members in zip(info.get("groups", []), group_members(spec)):
+        bad = [outcome.governing[m] for m in members if m in outcome.governing
+               and not outcome.governing[m].utilization <= 1.0]
+        if lab in info["final"]:
+            info["final"][lab]["passes"] = info["final"][lab]["passes"] and not bad
+            info["final"][lab]["checks_failing"] = sorted({c.check for c in bad})
+        if bad:
+            failing.append(f"{lab} ({', '.join(sorted({c.check for c in bad}))} in {len(bad)} member(s))")
+    if failing:
+        info["message"] += "; members of " + "; ".join(failing) + " fail a check that sizing does not select for"
+    return info
+
+
 def write_sized_case(path, spec: CaseSpec, case_path, caution: str, cutting=None):
     """Write the complete sized case (shaped again when the case has [shape]).
 

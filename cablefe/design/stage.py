@@ -42,7 +42,8 @@ def design_stage(results, out, caution: str, case_path=None, linear_solver=None,
         sized_path = write_sized_case(out / "sized.toml", run.spec, case_path, caution, run.cutting)
     outcome = run_checks(spec.design if sizing is None else results.model.spec.design, results, envelopes)
     if sizing is not None:
-        outcome = replace(outcome, sizing=sizing)
+        from .sizing import with_final_checks
+        outcome = replace(outcome, sizing=with_final_checks(sizing, outcome, results.model.spec))
     written = write_design(outcome, out, results.model.spec.units, caution)
     written += write_results(results, out, outcome.utilization_by_result())
     if sized_path is not None:
