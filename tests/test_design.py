@@ -281,3 +281,14 @@ def test_sizing_marks_a_group_that_fails_a_check_it_does_not_select_for():
     info = with_final_checks(run.history, run_checks(run.spec.design, run.results), run.spec)
     assert not info["final"]["H*"]["passes"] and info["final"]["H*"]["checks_failing"] == ["slack"]
     assert "does not select for" in info["message"]
+
+
+def test_cli_names_the_key_of_a_missing_catalogue(tmp_path, capsys):
+    from cablefe.cli import main
+    case = tmp_path / "case.toml"
+    text = (Path(__file__).resolve().parent.parent / "cases" / "sized_hangers.toml").read_text()
+    case.write_text(text)        # no example-strands.csv beside this copy
+    assert main(["run", str(case), "-o", str(tmp_path / "out")]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "design.size[0].catalogue" in err[0] and "example-strands" in err[0]
+    assert not (tmp_path / "out").exists()

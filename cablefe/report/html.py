@@ -394,6 +394,9 @@ def report_html(results, out, case_path, caution: str, figures: dict) -> str:
     section("caution", "Caution", f'<p class="caution"><b>Caution.</b> {_e(caution)}</p>')
     section("form-finding", "Form-finding and cutting lengths", _cutting(out, units))
     res_parts = []
+    if isinstance(design_data, dict) and design_data.get("sizing"):
+        res_parts.append("<p><b>These are the results of the sized case</b> (<code>sized.toml</code>): every "
+                         "[[design.size]] group carries its chosen catalogue section.</p>")
     for name, entry in data.get("results", {}).items():
         res_parts.append(_result_section(results, name, entry, units, figures.get(name)))
     if figures.get("__envelope__"):
