@@ -99,7 +99,8 @@ def plot_result(results, name: str, path) -> Path:
     L = u.length_scale
     res = results[name]
     pos_si = res.state.positions
-    axes, kind, view = choose_view(m, pos_si - m.coordinates)
+    # the sway of the structure, not of a guy's sag nodes, picks a mast's plane
+    axes, kind, view = choose_view(m, (pos_si - m.coordinates)[structure_nodes(m)[0]])
     base = m.coordinates / L
     pos = pos_si / L
     scale, biggest = magnification(m, pos_si)
