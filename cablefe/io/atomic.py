@@ -333,7 +333,9 @@ class ResultFolder:
         """
         if self.staging is None:
             raise RuntimeError("ResultFolder.commit before open")
-        files = sorted((p for p in self.staging.iterdir() if p.is_file() and not _TMP_RE.match(p.name)),
+        # plain files only: a nested writer's manifest, temporaries and folders stay behind
+        files = sorted((p for p in self.staging.iterdir() if p.is_file() and not p.is_symlink()
+                        and p.name != MANIFEST and not _TMP_RE.match(p.name)),
                        key=lambda p: (p.name in self.LAST, self.LAST.index(p.name) if p.name in self.LAST else 0,
                                       p.name))
         new = [p.name for p in files]
