@@ -141,6 +141,7 @@ __all__ = [
     "NOT_IMPLEMENTED",
     "MAX_DOFS",
     "MAX_ELEMENTS",
+    "MAX_COORDINATE",
     "SHAPE_METHODS",
     "SOLVERS",
 ]
@@ -196,6 +197,11 @@ ZERO_LENGTH_FRACTION = 1e-9
 MAX_DOFS = 10_000_000
 #: Largest number of elements (members times ``divide``), for the same reason.
 MAX_ELEMENTS = 10_000_000
+#: Largest coordinate accepted (m).  A double resolves about 2e-6 m at 1e10 m
+#: (machine epsilon 2.2e-16 times the value), so beyond this a structure's
+#: geometry cannot be told to the micrometre; projected survey grids reach
+#: 1e7 m.  Farther values are typing slips (a forgotten unit, 1e308).
+MAX_COORDINATE = 1e10
 
 _BARE_KEY = re.compile(r"[A-Za-z0-9_-]+\Z")
 
@@ -541,7 +547,7 @@ class _Reader:
                                 + _suggest(material, materials, listed=1000))
             area = self.quantity(_require(entry, "area", key, 'the metallic area, e.g. area = "1960 mm^2"'),
                                  "area", key_join(key, "area"), "positive")
-            out[name] = Section(
+            section = Section(
                 name=name, material=material, area=area,
                 weight=self.optional(entry, "weight", "force_per_length", key, "nonnegative"),
                 breaking_load=self.optional(entry, "breaking_load", "force", key, "positive"),
@@ -550,6 +556,15 @@ class _Reader:
                 Iz=self.optional(entry, "Iz", "second_moment", key, "positive"),
                 J=self.optional(entry, "J", "second_moment", key, "positive"),
             )
+            # products the elements use must stay finite (1e300 GPa times 1e10 m^2 is not)
+            mat = materials[material]
+            for part, value in (("area", mat.E * area), ("area", mat.unit_weight * area),
+                                ("Iy", mat.E * (section.Iy or 0.0)), ("Iz", mat.E * (section.Iz or 0.0)),
+                                ("J", mat.G * (section.J or 0.0))):
+                if not math.isfinite(value):
+                    raise CaseError(key_join(key, part), f"with material \"{material}\" this gives a stiffness "
+                                    "or weight too large for a double (overflow); check the values and units")
+            out[name] = section
         return out
 
     # -- nodes ----------------------------------------------------------------
@@ -628,7 +643,7 @@ class _Reader:
                     raise CaseError(self.node_key(nid), f'duplicate node id "{nid}": it is also interior node {k} '
                                     f'of divided member "{rec["id"]}" ({rec["key"]}.divide)')
                 owners[nid] = (index, k)
-        known = nodes.keys() | owners.keys()
+        known = [*nodes, *owners]  # in case order, for suggestions
         # nodes that some element joins: only these carry stiffness
         self.joined: set[str] = set(owners)
         for rec in records:
@@ -648,6 +663,7 @@ class _Reader:
                 raise CaseError(f"{rec['key']}.nodes", f'both ends are node "{rec["nodes"][0]}"; '
                                 "a member needs two different nodes (zero length)")
 
+        self.check_coordinates(nodes, records)
         positions = _interior_positions(records, owners, nodes)
         self.index = {n: k for k, n in enumerate(nodes)}
         self.index.update((n, k) for k, n in enumerate(owners, start=len(nodes)))
@@ -665,6 +681,21 @@ class _Reader:
         for group in groups:
             members.extend(self.finish_group(group, coords, tiny, sections, materials))
         return members
+
+    def check_coordinates(self, nodes, records) -> None:
+        """Every coordinate within :data:`MAX_COORDINATE` of the origin (m)."""
+        declared = np.concatenate([np.array(list(nodes.values())[: self.long_count], dtype=float).reshape(-1, 3),
+                                   self.table_xyz])
+        far = np.flatnonzero(np.abs(declared).max(axis=1, initial=0.0) > MAX_COORDINATE)
+        if far.size:
+            name = list(nodes)[int(far[0])]
+            raise CaseError(self.node_key(name), _far_message(declared[far[0]]))
+        for rec in records:
+            if rec["interior"] is not None:
+                points = np.asarray(rec["interior"], dtype=float)
+                far = np.flatnonzero(np.abs(points).max(axis=1) > MAX_COORDINATE)
+                if far.size:
+                    raise CaseError(f"{rec['key']}.interior[{int(far[0])}]", _far_message(points[far[0]]))
 
     def check_size(self, records, groups, declared: int) -> None:
         """Reject a model bigger than :data:`MAX_DOFS` / :data:`MAX_ELEMENTS` before building it."""
@@ -856,7 +887,8 @@ class _Reader:
             rotations = [d for d, on in zip(DIRECTIONS[3:], mask[3:]) if on]
             if rotations and code.split() != ["all"] and name not in self.rotation_nodes:
                 raise CaseError(key, f'node "{name}" has no rotations (it is joined to no beam), so '
-                                f'{" ".join(rotations)} restrain nothing; use "x y z" (or "pin", "all")')
+                                f'{" ".join(rotations)} {"restrains" if len(rotations) == 1 else "restrain"} nothing; '
+                                'use "x y z" (or "pin", "all")')
             out[name] = mask
         return out
 
@@ -1134,6 +1166,8 @@ class _Reader:
                 bad = [k for k, v in enumerate(vector) if not math.isfinite(v)]
                 if bad:
                     raise CaseError(f"{key}.{part}[{bad[0]}]", f"expected a finite number, found {vector[bad[0]]!r}")
+            if max(map(abs, position)) > MAX_COORDINATE:
+                raise CaseError(f"{key}.position", _far_message(position))
             out[name] = BeamReference(name, position, rotation, key)
         return out
 
@@ -1192,6 +1226,12 @@ def solver_unavailable(name: str) -> str:
 # ---------------------------------------------------------------------------
 # helpers of the reader
 # ---------------------------------------------------------------------------
+
+def _far_message(point) -> str:
+    shown = ", ".join(f"{v:.6g}" for v in point)
+    return (f"coordinates [{shown}] m lie beyond {MAX_COORDINATE:.0e} m from the origin, where a double "
+            "cannot resolve a structure's geometry; check the units and the value")
+
 
 @contextlib.contextmanager
 def _collector_paused():
