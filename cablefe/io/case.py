@@ -243,7 +243,7 @@ def interior_nodes(spec: CaseSpec) -> dict[str, tuple[float, float, float]]:
 
 
 def match_members(patterns: str | Iterable[str], member_ids: Sequence[str]) -> list[str]:
-    """Member ids equal to, or matching (:func:`fnmatch.fnmatchcase`), any pattern.
+    """Member ids equal to, or matching (shell-style, :mod:`cablefe.patterns`), any pattern.
 
     Parameters
     ----------
