@@ -739,6 +739,8 @@ def _build_loads(spec: CaseSpec, model: Model) -> dict[str, LoadVectors]:
         key = load.key or f"loads[{k}]"
         lb = builders.setdefault(load.case, _LoadBuilder(model))
         if isinstance(load, SelfWeight):
+            if not load.factor > 0.0:  # a spec built in code skips the reader's check
+                raise CaseError(f"{key}.factor", f"expected a self-weight factor > 0, found {load.factor!r}")
             for f, t in model.families.items():
                 if not len(t):
                     continue

@@ -261,6 +261,8 @@ CORPUS = [
      "combinations[0].factors", ()),
     ("combination-nan-factor", cable("factors = { self-weight = 1.0 }", "factors = { self-weight = nan }"),
      "combinations[0].factors.self-weight", ()),
+    ("combination-negative-self-weight", cable("factors = { self-weight = 1.0 }", "factors = { self-weight = -1.0 }"),
+     "combinations[0].factors.self-weight", ()),
     ("combination-text-factor", cable("factors = { self-weight = 1.0 }", 'factors = { self-weight = "much" }'),
      "combinations[0].factors.self-weight", ()),
     # --- form-finding -------------------------------------------------------------------------------

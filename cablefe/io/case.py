@@ -501,6 +501,7 @@ class _Reader:
         self.supports_map = supports
         loads = self.loads(data.get("loads", []))
         cases = {load.case for load in loads}
+        self.weight_cases = {load.case for load in loads if isinstance(load, SelfWeight)}
         combinations = self.combinations(data.get("combinations", []), cases)
         shape = self.shape(data["shape"], cases) if "shape" in data else None
         analysis = self.analysis(data.get("analysis", {}))
@@ -1072,6 +1073,9 @@ class _Reader:
                     raise CaseError(fkey, f'no load defines the load case "{case}"'
                                     + _suggest(case, sorted(cases), listed=1000))
                 factors[case] = self.quantity(factor, "dimensionless", fkey)
+                if factors[case] < 0.0 and case in self.weight_cases:
+                    raise CaseError(fkey, f'a negative factor on load case "{case}" would turn its self-weight '
+                                    "upwards; weight acts downwards (use a factor >= 0)")
             out.append(Combination(name=name, factors=factors, key=key))
         return out
 
