@@ -1019,3 +1019,22 @@ def test_big_compact_net_reads(tmp_path):
     spec = read_case(write(tmp_path, text))
     assert len(spec.nodes) == 3600 and len(spec.members) == 2 * 60 * 59
     assert spec.members[-1].nodes == ("N59_58", "N59_59")
+
+
+def test_python_floor_matches_the_toml_imports():
+    """pyproject.toml allows Python 3.10, which has no tomllib: code and tests read TOML
+    with tomli (a declared dependency); tomllib only as a guarded fallback."""
+    from pathlib import Path
+
+    import tomli
+
+    root = Path(__file__).resolve().parent.parent
+    project = tomli.loads((root / "pyproject.toml").read_text(encoding="utf-8"))["project"]
+    assert project["requires-python"] == ">=3.10"
+    assert any(dep.startswith("tomli>=") for dep in project["dependencies"])
+    for path in [*(root / "cablefe").rglob("*.py"), *(root / "tests").rglob("*.py"),
+                 *(root / "benchmarks").rglob("*.py")]:
+        lines = path.read_text(encoding="utf-8").splitlines()
+        for k, line in enumerate(lines):
+            if line.strip() in ("import tomllib", "import tomllib as _toml") or line.strip().startswith("from tomllib"):
+                assert k > 0 and lines[k - 1].strip().startswith("except ImportError"), f"{path}:{k + 1}"

@@ -1,6 +1,7 @@
 """One id pattern matcher, with the rules of the standard library's fnmatchcase
 and a cost linear in the number of ids and patterns."""
 import fnmatch
+import os
 import re
 import subprocess
 import sys
@@ -111,7 +112,7 @@ def _net(tmp_path, n):
     case = tmp_path / f"net{n}.toml"
     subprocess.run([sys.executable, "-m", "cablefe", "new", "net", "--span-x", str(2 * n), "--span-y",
                     str(2 * n), "--spacing", "2", "-o", str(case)], check=True, capture_output=True,
-                   cwd=ROOT, env={"PYTHONPATH": str(ROOT), "PATH": "/usr/bin:/bin"})
+                   cwd=ROOT, env={**os.environ, "PYTHONPATH": str(ROOT)})
     return case
 
 

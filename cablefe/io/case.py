@@ -826,8 +826,10 @@ class _Reader:
                                 "beam members need Iy, Iz and J on their section")
         if pretension is None:
             return
-        pretension = np.asarray(pretension, dtype=float)
         EA = materials[section.material].E * section.area
+        if isinstance(pretension, float) and pretension >= 0.0 and 1.0 + pretension / EA > 0.0:
+            return  # the usual single member, without building arrays (long-form nets have 10^4 of them)
+        pretension = np.asarray(pretension, dtype=float)
         if mtype == "cable" or tension_only:
             bad = np.flatnonzero(pretension < 0)
             if bad.size:
