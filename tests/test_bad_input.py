@@ -235,6 +235,7 @@ CORPUS = [
     ("member-pattern-matches-nothing", cable('members = ["C1"]', 'members = ["C1", "Q*"]'), "loads[2].members[1]", ()),
     ("member-load-empty-list", cable('members = ["C1"]', "members = []"), "loads[2].members", ()),
     ("temperature-absolute", cable("temperature = -30", 'temperature = "-30 degC"'), "loads[2].temperature", ()),
+    ("temperature-without-alpha", cable("alpha = 1.2e-5\n", ""), "loads[2].temperature", ()),
     ("temperature-nan", cable("temperature = -30", "temperature = nan"), "loads[2].temperature", ()),
     ("per-length-count", cable("temperature = -30", "per_length = [0, -1]"), "loads[2].per_length", ()),
     ("path-not-joined", cable('node = "C1.4"\nforce = [0, 0, -18]', 'path = ["C1.2", "C1.4"]\nper_length = [0, 0, -1]'),

@@ -490,6 +490,7 @@ class _Reader:
 
         materials = self.materials(data.get("materials", {}))
         sections = self.sections(data.get("sections", {}), materials)
+        self.expands = {name: materials[sec.material].alpha != 0.0 for name, sec in sections.items()}
         nodes = self.nodes(data.get("nodes", {}), data.get("node_table"))
         members = self.members(data.get("members", []), data.get("member_table", []),
                                nodes, sections, materials)
@@ -968,9 +969,12 @@ class _Reader:
                 return MemberLoad(case=case, members=patterns, key=key,
                                   per_length=self.q.vector(entry["per_length"], "force_per_length",
                                                            f"{key}.per_length"))
-            return TemperatureLoad(case=case, members=patterns, key=key,
-                                   delta_t=self.quantity(entry["temperature"], "temperature_difference",
-                                                         f"{key}.temperature"))
+            delta_t = self.quantity(entry["temperature"], "temperature_difference", f"{key}.temperature")
+            if not any(self.expands[self.member_list[k].section] for k in self.member_index.indices(patterns)):
+                raise CaseError(f"{key}.temperature", "no member it applies to has a thermal expansion "
+                                "coefficient (alpha of its material is 0 or missing), so the temperature "
+                                "change would do nothing; give the material an alpha")
+            return TemperatureLoad(case=case, members=patterns, key=key, delta_t=delta_t)
         return self.patch(entry, case, key)
 
     def displacement(self, entry, case, node, key) -> PrescribedDisplacement:
