@@ -381,3 +381,21 @@ def test_check_rejects_the_same_input(tmp_path, capsys):
             continue
         assert code == 2, (name, err)
         assert len(err.strip().splitlines()) == 1 and err.startswith(f"cablefe: {case}: ")
+
+
+def test_python_api_names_unknown_results_and_empty_runs():
+    """The library raises CaseError (not a bare ValueError) for the same mistakes."""
+    import tomli
+
+    from cablefe import build_model, solve
+    from cablefe.errors import CaseError, UnknownResultError
+    from cablefe.io.case import parse_case
+
+    model = build_model(parse_case(tomli.loads(CABLE)))
+    with pytest.raises(UnknownResultError) as info:
+        solve(model, names=["trolly"])
+    assert info.value.key == "names" and "trolly" in info.value.message
+    bare = BEAM.split("[[loads]]")[0]
+    with pytest.raises(CaseError) as info:
+        solve(build_model(parse_case(tomli.loads(bare))))
+    assert info.value.key == "loads"
