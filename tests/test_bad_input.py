@@ -121,7 +121,7 @@ CORPUS = [
     # --- top-level tables ---------------------------------------------------------------------------
     ("unknown-top-level-key", CABLE + "\n[sollver]\nx = 1\n", "sollver", ()),
     ("title-not-a-string", cable('title = "Gorge', 'title = 5 # "Gorge'), "title", ()),
-    ("design-not-implemented", CABLE + "\n[design]\nfactor = 1.5\n", "design", ()),
+    ("design-unknown-key", CABLE + "\n[design]\nfactor_of_everything = 1.5\n", "design.factor_of_everything", ()),
     ("studies-not-implemented", CABLE + '\n[studies]\nkind = "x"\n', "studies", ()),
     ("studies-array-not-implemented", CABLE + '\n[[studies]]\nkind = "x"\n', "studies", ()),
     ("modes-not-implemented", CABLE + "\n[modes]\ncount = 5\n", "modes", ()),

@@ -57,11 +57,13 @@ Extensions to the interface page
     fabrication state from the analysis state, K) and ``max_iterations``.
 ``[analysis]``: ``solver`` (one of :data:`SOLVERS`) and ``max_cuts``
     (how often an increment may be halved).
+``[design]``, ``[catalogues]``, fy on materials, Wy and Wz on sections
+    Design checks and sizing: read by :mod:`cablefe.io.case_design`.
 ``[report]``
     ``deck = ["D*"]``: node ids or patterns whose largest vertical
     deflection is reported; validated here (unknown keys, patterns that
     match no node) and kept in ``CaseSpec.extra["report"]``.
-``[design]``, ``[studies]``, ``[modes]``
+``[studies]``, ``[modes]``
     Not implemented in this version: rejected with a message saying so
     (:data:`NOT_IMPLEMENTED`), never accepted and ignored.
 
@@ -148,7 +150,7 @@ __all__ = [
 
 TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
                   "loads", "combinations", "shape", "analysis", "node_table", "member_table",
-                  "beam_reference")
+                  "beam_reference", "design", "catalogues")
 #: Top-level tables validated here and kept in ``CaseSpec.extra`` for the
 #: features that read them.
 PASS_THROUGH_KEYS = ("report",)
@@ -156,13 +158,12 @@ PASS_THROUGH_KEYS = ("report",)
 #: case that uses one is rejected (never read and ignored).  A feature that
 #: lands removes its entry here (and validates its table in the reader).
 NOT_IMPLEMENTED: Mapping[str, str] = {
-    "design": "design checks",
     "studies": "studies (parameter, load-position and sensitivity runs)",
     "modes": "natural frequencies and mode shapes",
 }
 REPORT_KEYS = ("deck",)
-MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha")
-SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J")
+MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha", "fy")
+SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J", "Wy", "Wz")
 MEMBER_KEYS = ("id", "type", "nodes", "section", "length0", "pretension", "tension_only",
                "divide", "up", "interior")
 NODE_TABLE_KEYS = ("ids", "x", "y", "z")
@@ -510,10 +511,13 @@ class _Reader:
         extra = {}
         if "report" in data:
             extra["report"] = self.report(data["report"])
+        from .case_design import read_design   # [design], [[design.size]], [catalogues.*]
+        design, catalogues, data = read_design(data, self.q, materials, self.member_list, self.source)
         return CaseSpec(title=title, units=self.units, materials=materials, sections=sections,
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
-                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra)
+                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra,
+                        design=design, catalogues=catalogues)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:
@@ -533,7 +537,8 @@ class _Reader:
             else:
                 unit_weight = self.optional(entry, "unit_weight", "unit_weight", key, "nonnegative", 0.0)
             alpha = self.optional(entry, "alpha", "thermal_expansion", key, default=0.0)
-            out[name] = Material(name=name, E=E, G=G, unit_weight=unit_weight, alpha=alpha)
+            fy = self.optional(entry, "fy", "stress", key, "positive")
+            out[name] = Material(name=name, E=E, G=G, unit_weight=unit_weight, alpha=alpha, fy=fy)
         return out
 
     def sections(self, value, materials) -> dict[str, Section]:
@@ -557,6 +562,8 @@ class _Reader:
                 Iy=self.optional(entry, "Iy", "second_moment", key, "positive"),
                 Iz=self.optional(entry, "Iz", "second_moment", key, "positive"),
                 J=self.optional(entry, "J", "second_moment", key, "positive"),
+                Wy=self.optional(entry, "Wy", "section_modulus", key, "positive"),
+                Wz=self.optional(entry, "Wz", "section_modulus", key, "positive"),
             )
             # products the elements use must stay finite (1e300 GPa times 1e10 m^2 is not)
             mat = materials[material]
