@@ -4,6 +4,7 @@ from __future__ import annotations
 import logging
 
 from .assembly import Assembler
+from .errors import CaseError, UnknownResultError
 from .model import Model
 from .results import Results
 from .solvers.linear import make_linear_solver
@@ -35,11 +36,14 @@ def solve(model: Model, names=None, progress=None, linear_solver: str | None = N
         with their last converged state.
     """
     todo = model.results_to_run()
+    if not todo:
+        raise CaseError("loads", "the case defines no load case and no combination: there is nothing to solve")
     if names is not None:
         wanted = set(names)
         unknown = wanted - {n for n, _ in todo}
         if unknown:
-            raise ValueError(f"no result named {sorted(unknown)} (known: {', '.join(n for n, _ in todo)})")
+            raise UnknownResultError("names", f"no result named {', '.join(map(repr, sorted(unknown)))} "
+                                     f"(known: {', '.join(n for n, _ in todo)})")
         todo = tuple(t for t in todo if t[0] in wanted)
     items = []
     # one pattern and one solver for all results: the pattern and the

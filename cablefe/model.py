@@ -7,7 +7,6 @@ text.
 """
 from __future__ import annotations
 
-import fnmatch
 import logging
 from dataclasses import dataclass, field
 from types import MappingProxyType
@@ -16,6 +15,7 @@ from typing import Mapping
 import numpy as np
 
 from .errors import CaseError
+from .patterns import PatternIndex, match_indices
 from .spec import (CaseSpec, MemberLoad, NodalLoad, PatchLoad, PrescribedDisplacement,
                    SelfWeight, TemperatureLoad, DIRECTIONS)
 
@@ -204,14 +204,13 @@ class Model:
 
 
 def match_members(ids, patterns) -> list[int]:
-    """Indices of ids matching any of the shell-style patterns, in id order."""
-    if isinstance(patterns, str):
-        patterns = (patterns,)
-    out = []
-    for k, mid in enumerate(ids):
-        if any(p == mid or fnmatch.fnmatchcase(mid, p) for p in patterns):
-            out.append(k)
-    return out
+    """Indices of ids matching any of the ids or shell-style patterns, in id order.
+
+    ``ids`` is a sequence of ids or a :class:`~cablefe.patterns.PatternIndex`
+    built once for many calls; see :mod:`cablefe.patterns` for the rules.
+    """
+    index = ids if isinstance(ids, PatternIndex) else PatternIndex(ids)
+    return index.indices(patterns).tolist()
 
 
 def _section_data(spec: CaseSpec, member, key):
@@ -475,8 +474,7 @@ def report_deck_nodes(model: Model) -> np.ndarray | None:
             not all(isinstance(p, str) for p in patterns):
         raise CaseError("report.deck", f"expected a list of node id patterns such as [\"D*\"], "
                         f"found {patterns!r}")
-    hit = [k for k, nid in enumerate(model.node_ids)
-           if any(p == nid or fnmatch.fnmatchcase(nid, p) for p in patterns)]
+    hit = match_indices(patterns, model.node_ids)
     if not hit:
         raise CaseError("report.deck", f"no node matches {list(patterns)}")
     return np.asarray(hit, dtype=np.int64)
@@ -736,11 +734,13 @@ def _segment_elements(model: Model, a: str, b: str):
 
 def _build_loads(spec: CaseSpec, model: Model) -> dict[str, LoadVectors]:
     builders: dict[str, _LoadBuilder] = {}
-    ids = [m.id for m in model.members]
+    ids = PatternIndex([m.id for m in model.members])   # indexed once for every load
     for k, load in enumerate(spec.loads):
         key = load.key or f"loads[{k}]"
         lb = builders.setdefault(load.case, _LoadBuilder(model))
         if isinstance(load, SelfWeight):
+            if not load.factor > 0.0:  # a spec built in code skips the reader's check
+                raise CaseError(f"{key}.factor", f"expected a self-weight factor > 0, found {load.factor!r}")
             for f, t in model.families.items():
                 if not len(t):
                     continue
