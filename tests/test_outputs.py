@@ -326,9 +326,16 @@ max_cuts = 2
 
 
 def test_result_folder_discards_its_staging_on_error(tmp_path):
-    out = tmp_path / "out"
+    out = tmp_path / "a" / "out"
     with pytest.raises(RuntimeError):
         with ResultFolder(out) as f:
             (f.staging / "results.json").write_text("{}")
             raise RuntimeError("writer failed")
-    assert list(out.iterdir()) == []
+    # the folders this run made are gone again; an existing one stays, with its files
+    assert not (tmp_path / "a").exists() and tmp_path.exists()
+    out.mkdir(parents=True)
+    (out / "mine.txt").write_text("x")
+    with pytest.raises(RuntimeError):
+        with ResultFolder(out):
+            raise RuntimeError("writer failed")
+    assert sorted(p.name for p in out.iterdir()) == ["mine.txt"]

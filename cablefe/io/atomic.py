@@ -308,6 +308,13 @@ class ResultFolder:
     def open(self) -> Path:
         """Make the folder and a fresh staging folder in it; clean what killed runs left."""
         self.check()
+        # folders made here are removed again when nothing is committed:
+        # a run that fails on its input leaves no trace
+        self._made = []
+        p = self.folder
+        while not p.exists() and p != p.parent:
+            self._made.append(p)
+            p = p.parent
         self.folder.mkdir(parents=True, exist_ok=True)
         clean_stale_temporaries(self.folder, _read_manifest(self.folder))
         for _ in range(100):
@@ -354,15 +361,26 @@ class ResultFolder:
                         target.unlink()
             write_text(self.folder / MANIFEST, json.dumps(
                 {"writer": "cablefe", "state": "complete", "files": new}, indent=1))
-        self.discard()
         self.committed = [self.folder / n for n in sorted(new, key=lambda n: n != "results.json")]
+        self.discard()
         return self.committed
 
     def discard(self) -> None:
-        """Remove the staging folder and whatever is still in it."""
+        """Remove the staging folder and whatever is still in it.
+
+        Before a commit, also the output folder (and its parents) when this
+        run made them and they are still empty.
+        """
         if self.staging is not None:
             shutil.rmtree(self.staging, ignore_errors=True)
             self.staging = None
+            if not self.committed:
+                for made in getattr(self, "_made", []):   # deepest first
+                    try:
+                        made.rmdir()
+                    except OSError:
+                        break
+        self._made = []
 
     def __enter__(self) -> "ResultFolder":
         self.open()
