@@ -164,7 +164,7 @@ class Results:
         dict or None
             ``node`` (id), ``index``, ``displacement`` (3,) m, ``vertical``
             (z displacement, m, negative down) and ``x`` (the node's x in
-            the model's coordinates, m); None when the case has no
+            site coordinates, m); None when the case has no
             ``[report] deck``.
         """
         nodes = report_deck_nodes(self.model)
@@ -174,7 +174,7 @@ class Results:
         k = int(np.argmax(np.abs(disp[:, 2])))
         n = int(nodes[k])
         return {"node": self.model.node_ids[n], "index": n, "displacement": disp[k].copy(),
-                "vertical": float(disp[k, 2]), "x": float(self.model.coordinates[n, 0])}
+                "vertical": float(disp[k, 2]), "x": float(self.model.site_coordinates[n, 0])}
 
     def as_dict(self) -> dict:
         """The results file content (contract v1), in the case's units."""
@@ -185,6 +185,7 @@ class Results:
         for res in self.items:
             pos = res.state.positions
             disp = pos - m.coordinates
+            pos = m.to_site(pos)   # positions are written in site coordinates
             # whole arrays to lists once, then one small dict per node and
             # member (a per-node numpy call costs more than the dict itself)
             nodes = {nid: {"position": p, "displacement": d} for nid, p, d in

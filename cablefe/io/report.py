@@ -49,8 +49,8 @@ def plot_result(results, name: str, path) -> Path:
     L = u.length_scale
     res = results[name]
     axis, label = _elevation_axes(m.coordinates)
-    base = m.coordinates / L
-    pos = res.state.positions / L
+    base = m.site_coordinates / L   # drawn in site coordinates; movements from the local ones
+    pos = base + (res.state.positions - m.coordinates) / L
     disp = np.linalg.norm(pos - base, axis=1)
     size = float(np.ptp(base, axis=0).max()) or 1.0
     biggest = float(disp.max()) if len(disp) else 0.0

@@ -72,7 +72,7 @@ def _text_tables(results: Results) -> dict | None:
         if results.deck_deflection(res.name) is not None:
             return None
         pos = res.state.positions
-        p, d = _rows(pos / L), _rows((pos - m.coordinates) / L)
+        p, d = _rows(m.to_site(pos) / L), _rows((pos - m.coordinates) / L)
         mf = results.member_forces(res.name)
         counts = [len(e) for e in mf.elements]
         ends = _rows(np.concatenate(mf.elements) / F) if sum(counts) else []
@@ -236,7 +236,7 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
     L, F = u.length_scale, u.force_scale
     pos = res.state.positions
     disp = pos - m.coordinates
-    points = [pos / L]
+    points = [m.to_site(pos) / L]   # site coordinates on output
     pdisp = [disp / L]
     cells, tension, member, slack, my, mz = [], [], [], [], [], []
     per = element_end_tensions(m, res.responses)
@@ -263,7 +263,7 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
             idisp = di[:, None] * (1 - s)[None, :, None] + dj[:, None] * s[None, :, None]
             ids = next_point + np.arange(n * (c - 2)).reshape(n, c - 2)
             next_point += n * (c - 2)
-            points.append(inner.reshape(-1, 3) / L)
+            points.append(m.to_site(inner.reshape(-1, 3)) / L)
             pdisp.append(idisp.reshape(-1, 3) / L)
             chain = np.concatenate([t.nodes[:, :1], ids, t.nodes[:, 1:]], axis=1)   # (n, c)
             seg = np.stack([chain[:, :-1], chain[:, 1:]], axis=2).reshape(-1, 2)

@@ -238,11 +238,12 @@ def shaped_case(spec: CaseSpec, model: Model, coordinates, member_length0, rotat
     nodes = dict(spec.nodes)
     X = None
     if coordinates is not None:
-        X = np.array(coordinates, dtype=float)
+        # the model works in local coordinates; the case is written in the site's
+        X = model.to_site(np.array(coordinates, dtype=float))
         held = np.zeros(X.shape, dtype=bool)
         g = model.dof[:, :3]
         held[g >= 0] = model.supported[g[g >= 0]]
-        X[held] = model.coordinates[held]
+        X[held] = model.site_coordinates[held]
         for name in spec.nodes:
             nodes[name] = tuple(float(v) for v in X[model.node_index[name]])
     members = []
@@ -268,7 +269,8 @@ def _beam_reference_table(spec: CaseSpec, model: Model, rotations: np.ndarray) -
     from ..elements.beam import logm_so3
     turning = np.flatnonzero(model.dof[:, 3] >= 0)
     theta = logm_so3(rotations[turning])
-    ref = model.reference_coordinates if model.reference_coordinates is not None else model.coordinates
+    ref = model.to_site(model.reference_coordinates if model.reference_coordinates is not None
+                        else model.coordinates)
     out = {}
     for k, n in enumerate(turning.tolist()):
         name = model.node_ids[n]
