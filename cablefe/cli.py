@@ -101,6 +101,8 @@ def cmd_check(args) -> int:
     runs = model.results_to_run()
     print(f"results to solve: {', '.join(n for n, _ in runs) or 'none'}")
     print(f"form-finding: {spec.shape.method if spec.shape else 'none'}")
+    for w in model.warnings:
+        print(f"WARNING: {w}")
     return 0
 
 
@@ -116,8 +118,17 @@ def _summary(results) -> None:
         j = int(np.argmax(mf.max_tension)) if len(mf.max_tension) else 0
         flag = "converged" if o.converged else f"NOT CONVERGED ({o.message})"
         print(f"  {res.name}: {flag}; load factor {o.load_factor:.3f}, {o.iterations} iterations")
-        for w in o.warnings:
+        for w in res.warnings:
             print(f"    WARNING: {w}")
+        eq = res.equilibrium
+        if eq:
+            F = u.force_scale
+            at = eq.get("unbalanced_at")
+            print(f"    equilibrium: largest unbalanced force {_fmt(eq['largest_unbalanced_force'] / F, u.force)}"
+                  + (f" at {at[0]} {at[1]}" if at else "")
+                  + "; reactions + loads = [" + ", ".join(f"{v / F:.3g}" for v in eq["reactions_plus_loads"])
+                  + f"] {u.force}, total load [" + ", ".join(f"{v / F:.4g}" for v in eq["total_load"])
+                  + f"] {u.force}")
         if len(disp):
             print(f"    largest displacement {_fmt(disp[k] / u.length_scale, u.length)} at node {m.node_ids[k]}")
         if len(mf.max_tension):

@@ -154,6 +154,9 @@ class Model:
     reference_coordinates: np.ndarray | None = None   # (nn, 3) m; None: ``coordinates``
     initial_rotations: np.ndarray | None = None       # (nn, 3, 3); None: identity / no rotations
     origin: np.ndarray = field(default_factory=lambda: np.zeros(3))   # (3,) m, site position of local 0
+    #: sentences for the engineer about the model itself (coincident nodes,
+    #: implausible sections); every result repeats them
+    warnings: tuple = ()
 
     @property
     def site_coordinates(self) -> np.ndarray:
@@ -452,7 +455,42 @@ def build_model(spec: CaseSpec) -> Model:
     from dataclasses import replace
     model = replace(model, load_cases=MappingProxyType(cases), combinations=combos)
     report_deck_nodes(model)   # fail at build time, not after the analysis
-    return model
+    notes = model_warnings(model)
+    for w in notes:
+        log.warning(w)
+    return replace(model, warnings=tuple(notes)) if notes else model
+
+
+#: nodes closer than this fraction of the model's size are taken as one point
+COINCIDENT = 1e-9
+#: a section area above this (m^2) in a file whose lengths are in metres is
+#: most likely a value in mm^2 or cm^2 typed as m^2 (common practice: the
+#: largest bridge cables and girders have areas well below 1 m^2)
+PLAUSIBLE_AREA = 1.0
+
+
+def model_warnings(model: Model) -> list[str]:
+    """Warnings about the model as built (not errors): coincident nodes, implausible sections."""
+    notes = []
+    X = model.coordinates
+    if len(X) > 1:
+        from scipy.spatial import cKDTree
+        tol = COINCIDENT * max(model.size, np.finfo(float).tiny)
+        pairs = cKDTree(X).query_pairs(tol, output_type="ndarray")
+        if len(pairs):
+            shown = ", ".join(f"{model.node_ids[a]} and {model.node_ids[b]}" for a, b in pairs[:5].tolist())
+            more = f" and {len(pairs) - 5} more pairs" if len(pairs) > 5 else ""
+            notes.append(f"nodes at the same position (within {COINCIDENT:g} of the model's size): "
+                         f"{shown}{more}; they are not joined unless a member joins them")
+    spec = model.spec
+    if spec.units.length == "m":
+        used = {m.section for m in spec.members}
+        big = [(name, sec.area) for name, sec in spec.sections.items()
+               if name in used and sec.area > PLAUSIBLE_AREA]
+        for name, area in big:
+            notes.append(f'section "{name}": area {area:g} m^2 is above {PLAUSIBLE_AREA:g} m^2; '
+                         "mm^2 or cm^2 typed as m^2? (a bare number is in the file's units, here m)")
+    return notes
 
 
 def _beam_reference(spec: CaseSpec, index: Mapping[str, int], coordinates: np.ndarray,

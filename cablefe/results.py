@@ -98,12 +98,33 @@ def member_forces(model: Model, result: StaticResult) -> MemberForces:
     return MemberForces(tension, mx, mn, slack, elements, beams)
 
 
-def result_header(res: StaticResult) -> dict:
-    """The per-result entries of results.json before ``nodes`` and ``members``."""
+def result_header(res: StaticResult, force_scale: float = 1.0, length_scale: float = 1.0) -> dict:
+    """The per-result entries of results.json before ``nodes`` and ``members``.
+
+    ``equilibrium`` is :func:`cablefe.solvers.static.equilibrium_check` in
+    the file's units (forces divided by ``force_scale`` N, moments by
+    ``force_scale * length_scale`` N m).
+    """
     o = res.outcome
     return {"converged": bool(o.converged), "load_factor": float(o.load_factor),
             "iterations": int(o.iterations), "residual": float(o.residual), "status": o.status,
-            "message": o.message, "factors": dict(res.factors), "warnings": list(o.warnings)}
+            "message": o.message, "factors": dict(res.factors), "warnings": list(res.warnings),
+            "equilibrium": equilibrium_in_units(res.equilibrium, force_scale, length_scale)}
+
+
+def equilibrium_in_units(eq: Mapping, force_scale: float, length_scale: float) -> dict:
+    """The equilibrium check with forces in ``force_scale`` N and moments in ``force_scale * length_scale`` N m."""
+    out = {}
+    for key, value in eq.items():
+        if key in ("largest_unbalanced_force", "load_scale"):
+            out[key] = float(value) / force_scale
+        elif key == "largest_unbalanced_moment":
+            out[key] = float(value) / (force_scale * length_scale)
+        elif key in ("total_load", "reactions_plus_loads"):
+            out[key] = [float(v) / force_scale for v in value]
+        else:
+            out[key] = value
+    return out
 
 
 @dataclass(frozen=True)
@@ -229,7 +250,7 @@ class Results:
                     e["moment"] = ends[:, :, 4:6].tolist()
                     e["local_end_forces"] = ends.reshape(-1, 12).tolist()
                 members[mem.id] = e
-            out["results"][res.name] = {**result_header(res), "nodes": nodes, "members": members}
+            out["results"][res.name] = {**result_header(res, F, L), "nodes": nodes, "members": members}
             deck = self.deck_deflection(res.name)
             if deck is not None:   # extension: [report] deck
                 out["results"][res.name]["deck"] = {"node": deck["node"],

@@ -282,7 +282,8 @@ def _beam_reference_table(spec: CaseSpec, model: Model, rotations: np.ndarray) -
 
 def _settings(spec: CaseSpec) -> NewtonSettings:
     a = spec.analysis
-    return NewtonSettings(a.increments, min(a.tolerance, SHAPE_TOLERANCE), a.max_iterations, a.max_cuts)
+    return NewtonSettings(a.increments, min(a.tolerance, SHAPE_TOLERANCE), a.max_iterations, a.max_cuts,
+                          max_total_iterations=a.max_total_iterations, max_total_cuts=a.max_total_cuts)
 
 
 def _equilibrium(model: Model, factors, settings, linear_solver) -> StaticResult:
