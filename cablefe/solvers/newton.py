@@ -52,8 +52,8 @@ class NewtonSettings:
     max_iterations: int = 30
     max_cuts: int = 12
     line_search: int = 6          # number of halvings tried along a Newton step
-    max_total_iterations: int = 1000   # Newton iterations of the whole load path (a budget per result)
-    max_total_cuts: int = 60           # increment cuts of the whole load path (a budget per result)
+    max_total_iterations: int = 400    # Newton iterations of the whole load path (a budget per result)
+    max_total_cuts: int = 40           # increment cuts of the whole load path (a budget per result)
 
 
 @dataclass(frozen=True)
@@ -294,7 +294,8 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
                 status, msg = "budget", (f"no convergence beyond load factor {lam:.4f}: the work budget of "
                                          f"{settings.max_total_iterations} iterations and "
                                          f"{settings.max_total_cuts} increment cuts per result is spent "
-                                         f"({total_iterations} iterations, {all_cuts} cuts)")
+                                         f"({total_iterations} iterations, {all_cuts} cuts; [analysis] "
+                                         f"max_total_iterations and max_total_cuts set it)")
             elif result.failure == "non-finite":
                 status, msg = "non-finite", reason or "the residual became non-finite"
             else:
