@@ -457,7 +457,9 @@ def build_model(spec: CaseSpec) -> Model:
     report_deck_nodes(model)   # fail at build time, not after the analysis
     notes = model_warnings(model)
     for w in notes:
-        log.warning(w)
+        # info only: form-finding builds many models; ``check`` prints these
+        # and every result repeats them in its warnings
+        log.info(w)
     return replace(model, warnings=tuple(notes)) if notes else model
 
 

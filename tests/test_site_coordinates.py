@@ -104,3 +104,19 @@ def test_local_origin_is_a_power_of_two_grid_point():
     assert np.all(np.abs(site - o) < 16 * 64)
     assert_allclose((site - o) + o, site, rtol=0, atol=0)
     assert not np.any(local_origin(site - o))
+
+
+def test_form_finding_on_a_survey_grid():
+    # the shaped case (site coordinates, unstressed lengths) is the origin
+    # model's, moved: targets are site coordinates too
+    from cablefe.solvers.formfind import find_shape
+    offset = np.asarray(OFFSETS[0])
+    near, far = pair("generated-suspension.toml", offset)
+    targets = {n: {a: v + offset["xyz".index(a)] for a, v in c.items()} for n, c in far.shape.targets.items()}
+    far = dataclasses.replace(far, shape=dataclasses.replace(far.shape, targets=targets))
+    a, b = find_shape(near), find_shape(far)
+    xa = np.array([a.spec.nodes[k] for k in a.spec.nodes])
+    xb = np.array([b.spec.nodes[k] for k in a.spec.nodes]) - offset
+    # 10 ulp of a coordinate of 5e6 m: the resolution the shaped file is written with
+    assert_allclose(xb, xa, rtol=0, atol=10 * np.spacing(5e6))
+    assert_allclose(b.member_length0, a.member_length0, rtol=1e-9)

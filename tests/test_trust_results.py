@@ -83,6 +83,15 @@ def test_mesh_draws_the_exact_catenary_tension(tmp_path):
     assert_allclose(mesh.cell_data["tension"][0], expected / res.model.spec.units.force_scale, rtol=1e-9)
     # the old drawing (linear between equal end tensions) would be flat
     assert np.ptp(mesh.cell_data["tension"][0]) > 0.01 * expected.max()
+    # tension against height along the drawn curve: with dT/ds = w v/T and
+    # dz/ds = (v/T)(1 + T/EA) (Irvine 1981, sec. 1.3), dT (1 + T/EA) = w dz, so
+    # T + T^2/(2 EA) - w z is constant along an elastic catenary (T = T_A + w (z - z_A)
+    # when inextensible)
+    k = np.arange(1, c - 1)
+    z = mesh.points[2:, 2] * res.model.spec.units.length_scale     # interior points, in order
+    T = np.hypot(H, W0 * (k / (c - 1) * L0 - L0 / 2))
+    TA = np.hypot(H, W0 * L0 / 2)
+    assert_allclose(T + T**2 / (2 * E * A) - W0 * z, TA + TA**2 / (2 * E * A), rtol=1e-10)
 
 
 # -- 4. equilibrium check against hand statics ---------------------------------

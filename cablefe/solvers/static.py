@@ -244,7 +244,7 @@ def _unsolved(problem: StaticProblem, name: str, factors, status: str, message: 
     reactions = _reactions(problem, ev, 0.0)
     return StaticResult(name, dict(factors), outcome, state, reactions, ev.responses,
                         equilibrium_check(problem, ev, reactions, 0.0),
-                        tuple(getattr(problem.model, "warnings", ())))
+                        tuple(problem.model.warnings))
 
 
 def _reactions(problem: StaticProblem, ev: Evaluation, lam: float) -> np.ndarray:
@@ -434,7 +434,7 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
     ev = problem.assembler.evaluate(outcome.state, loads, lam, want_tangent=False)
     reactions = _reactions(problem, ev, lam)
     equilibrium = equilibrium_check(problem, ev, reactions, lam)
-    notes = list(getattr(model, "warnings", ()))
+    notes = list(model.warnings)
     if outcome.converged and not problem.last_increment_solved:
         hidden = _hidden_mechanism(problem, outcome.state, lam)
         if hidden:
@@ -443,7 +443,7 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
     if lost:
         notes.append(lost)
     notes += _plausibility(model, outcome.state, ev.responses)
-    for w in notes:
+    for w in notes[len(model.warnings):]:     # the model's own are the model's to report
         log.warning("%s: %s", name, w)
     log.info("%s: %s", name, outcome.message)
     return StaticResult(name, dict(factors), outcome, outcome.state, reactions, ev.responses,
