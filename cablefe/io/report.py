@@ -154,7 +154,7 @@ def report_text(results, case_path, caution: str, figures: dict, shape_note: str
                      f"| {mf.max_tension[j] / F:.4g} | {m.members[j].id} | {int(mf.slack.sum())} |")
     lines.append("")
     for r in results.items:
-        for w in r.outcome.warnings:
+        for w in r.warnings:
             lines += [f"**Warning, {r.name}**: {w}.", ""]
     not_conv = [r for r in results.items if not r.converged]
     for r in not_conv:
@@ -173,6 +173,16 @@ def report_text(results, case_path, caution: str, figures: dict, shape_note: str
     for res in results.items:
         for nid, r in results.reactions(res.name).items():
             lines.append(f"| {res.name} | {nid} | {r[0] / F:.4g} | {r[1] / F:.4g} | {r[2] / F:.4g} |")
+    # the equilibrium check of every result: reactions against the applied loads
+    lines += ["", "### Equilibrium check", "",
+              f"| result | total load x, y, z [{u.force}] | reactions + loads [{u.force}] "
+              f"| largest unbalanced force [{u.force}] |", "| --- | --- | --- | --- |"]
+    for res in results.items:
+        eq = res.equilibrium
+        if eq:
+            lines.append(f"| {res.name} | {', '.join(f'{v / F:.4g}' for v in eq['total_load'])} "
+                         f"| {', '.join(f'{v / F:.3g}' for v in eq['reactions_plus_loads'])} "
+                         f"| {eq['largest_unbalanced_force'] / F:.3g} |")
     hi, lo = _envelope(results)
     lines += ["", "### Tension envelope", "",
               f"Largest and smallest tension of each member over all results"
