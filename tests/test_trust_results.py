@@ -49,7 +49,7 @@ def irvine_level_H(span, L0, w, EA):
 # -- 7. the catenary's weight does not change with temperature ----------------
 
 @pytest.mark.parametrize("delta_t", [0.0, 150.0, -150.0])
-def test_heated_catenary_keeps_its_weight_and_matches_irvine(delta_t):
+def test_heated_catenary_keeps_its_weight_and_matches_irvine(delta_t, verify):
     # source: Irvine 1981, Cable Structures, sec. 1.3: a thermal strain e
     # stretches the unstrained length to L0 (1 + e) with weight w0 / (1 + e)
     # per unit of it; the mass, so the total weight w0 L0, is unchanged.
@@ -60,15 +60,19 @@ def test_heated_catenary_keeps_its_weight_and_matches_irvine(delta_t):
     H = irvine_level_H(span, L0 * (1 + e), W0 / (1 + e), E * A)
     V = 0.5 * W0 * L0                                    # hand statics: half the weight at each end
     T = np.hypot(H, V)
-    assert_allclose(res.tension("sw", "C"), [T, T], rtol=1e-9)
+    irvine = "Irvine 1981, Cable Structures, sec. 1.3 (elastic catenary, thermal strain)"
+    verify.check(f"level heavy cable, temperature change {delta_t:g} K: support tensions",
+                 irvine, res.tension("sw", "C"), [T, T], rtol=1e-9, unit="N")
     r = res.reactions("sw")
     # sum of the reactions = the weight w0 L0, whatever the temperature (was (1 + e) w0 L0)
-    assert_allclose(r["A"][2] + r["B"][2], W0 * L0, rtol=1e-12)
+    verify.check(f"level heavy cable, temperature change {delta_t:g} K: sum of vertical reactions = w0 L0",
+                 "statics of the whole cable as a free body; " + irvine, r["A"][2] + r["B"][2], W0 * L0,
+                 rtol=1e-12, unit="N")
     eq = res["sw"].equilibrium
     assert_allclose(eq["total_load"], [0.0, 0.0, -W0 * L0], rtol=1e-12, atol=1e-9 * W0 * L0)
 
 
-def test_mesh_draws_the_exact_catenary_tension(tmp_path):
+def test_mesh_draws_the_exact_catenary_tension(verify):
     # source: Irvine 1981, Cable Structures, sec. 1.3: T(s) = sqrt(H^2 + v(s)^2)
     # with v(s) = w (s - L0/2) on a level span (unstrained coordinate s);
     # the tension is least (H) at mid-span and not linear between the ends.
@@ -80,7 +84,10 @@ def test_mesh_draws_the_exact_catenary_tension(tmp_path):
     s = (np.arange(c - 1) + 0.5) / (c - 1) * L0          # segment middles in unstrained length
     expected = np.hypot(H, W0 * (s - L0 / 2))
     # the results are in kN (force_scale) in a file with units; here N
-    assert_allclose(mesh.cell_data["tension"][0], expected / res.model.spec.units.force_scale, rtol=1e-9)
+    verify.check("level heavy cable drawn in the mesh: tension at the middle of each drawn segment",
+                 "Irvine 1981, Cable Structures, sec. 1.3: T(s) = sqrt(H^2 + v(s)^2)",
+                 mesh.cell_data["tension"][0], expected / res.model.spec.units.force_scale, rtol=1e-9,
+                 unit="N")
     # the old drawing (linear between equal end tensions) would be flat
     assert np.ptp(mesh.cell_data["tension"][0]) > 0.01 * expected.max()
     # tension against height along the drawn curve: with dT/ds = w v/T and
@@ -91,12 +98,15 @@ def test_mesh_draws_the_exact_catenary_tension(tmp_path):
     z = mesh.points[2:, 2] * res.model.spec.units.length_scale     # interior points, in order
     T = np.hypot(H, W0 * (k / (c - 1) * L0 - L0 / 2))
     TA = np.hypot(H, W0 * L0 / 2)
-    assert_allclose(T + T**2 / (2 * E * A) - W0 * z, TA + TA**2 / (2 * E * A), rtol=1e-10)
+    verify.check("level heavy cable drawn in the mesh: T + T^2/(2EA) - w z constant along the curve",
+                 "derived from Irvine 1981, Cable Structures, sec. 1.3 (dT/ds = w v/T, dz/ds = (v/T)(1 + T/EA))",
+                 T + T**2 / (2 * E * A) - W0 * z, np.full(k.size, TA + TA**2 / (2 * E * A)), rtol=1e-10,
+                 unit="N")
 
 
 # -- 4. equilibrium check against hand statics ---------------------------------
 
-def test_equilibrium_check_against_hand_statics(tmp_path, capsys):
+def test_equilibrium_check_against_hand_statics(tmp_path, verify):
     # source: statics of the whole structure as one free body: the support
     # reactions balance the applied loads, self-weight included.  Two
     # catenaries A-C-B with a point load P at C; total weight w0 (L1 + L2).
@@ -113,9 +123,12 @@ def test_equilibrium_check_against_hand_statics(tmp_path, capsys):
     assert res.all_converged
     total = P + W0 * (5.01 + 5.02)
     eq = res["g"].equilibrium
-    assert_allclose(eq["total_load"], [0.0, 0.0, -total], rtol=1e-12, atol=1e-12 * total)
+    statics = "statics of the whole structure as one free body (hand calculation)"
+    verify.check("two catenaries with a point load: reported total load = P + w0 (L1 + L2)", statics,
+                 eq["total_load"], [0.0, 0.0, -total], rtol=1e-12, atol=1e-12 * total, unit="N")
     r = res.reactions("g")
-    assert_allclose(r["A"][2] + r["B"][2] + r["C"][2], total, rtol=1e-9)
+    verify.check("two catenaries with a point load: sum of vertical reactions = P + w0 (L1 + L2)", statics,
+                 r["A"][2] + r["B"][2] + r["C"][2], total, rtol=1e-9, unit="N")
     assert_allclose(eq["reactions_plus_loads"], [0.0, 0.0, 0.0], atol=1e-9 * total)
     assert eq["largest_unbalanced_force"] <= 1e-8 * total
     assert res["g"].warnings == ()
