@@ -151,6 +151,14 @@ class Results:
                 return r
         raise KeyError(f"no result named {name!r} (known: {', '.join(self.names)})")
 
+    def positions(self, name: str) -> np.ndarray:
+        """(nn, 3) deformed node positions in site coordinates (as in the case), m.
+
+        ``self[name].state.positions`` are the same positions relative to
+        the model's local origin (``model.origin``).
+        """
+        return self.model.to_site(self[name].state.positions)
+
     def displacements(self, name: str) -> np.ndarray:
         """(nn, 3) displacements from the model's coordinates, m."""
         return self[name].state.positions - self.model.coordinates

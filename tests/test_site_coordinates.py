@@ -91,7 +91,7 @@ def test_outputs_stay_in_site_coordinates(tmp_path):
         assert_allclose(entry["position"], np.asarray(xyz) / L + np.asarray(entry["displacement"]),
                         rtol=0, atol=4 * np.spacing(5e6) / L)
     mesh = meshio.read(tmp_path / "trolley.vtu")
-    site = model.to_site(res["trolley"].state.positions) / L
+    site = res.positions("trolley") / L
     assert_allclose(mesh.points[:len(site)], site, rtol=0, atol=np.spacing(5e6))
     # interior curve points lie between the site extremes, not near the origin
     assert np.all(mesh.points[:, 1] > 4.9e6)

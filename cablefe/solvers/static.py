@@ -165,6 +165,8 @@ class StaticProblem:
 
     def solve_linear(self, K, r):
         self._solved = True
+        if K is None:   # the evaluation failed (see evaluate): a non-finite step fails too
+            return np.full(len(self.free), np.nan)
         if K.shape[0] == 0:
             return np.zeros(0)
         try:
