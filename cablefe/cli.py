@@ -109,6 +109,8 @@ def cmd_check(args) -> int:
         d = spec.design
         print(f"design checks: on {', '.join(d.results)}; {len(d.size)} size group(s)"
               + (f"; PLACEHOLDER factors: {', '.join(d.placeholders)}" if d.placeholders else ""))
+    for w in model.warnings:
+        print(f"WARNING: {w}")
     return 0
 
 

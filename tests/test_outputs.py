@@ -165,13 +165,23 @@ def test_interrupted_overwrite_leaves_no_old_meshes_beside_new_results(tmp_path,
 
 def test_a_result_that_raises_keeps_what_was_solved(tmp_path, capsys, monkeypatch):
     out = tmp_path / "out"
-    _stop_after(monkeypatch, 2, ValueError("element 17: frame lost"))
+    # an unexpected error (a defect, not a numerical failure) stops the run
+    _stop_after(monkeypatch, 2, TypeError("element 17: frame lost"))
     assert main(["solve", str(CASE), "-o", str(out)]) == 1
     line = _one_line(capsys.readouterr().err)
     assert "trolley-cold" in line and "frame lost" in line
     data = json.loads((out / "results.json").read_text())
     assert list(data["results"]) == ["self-weight", "trolley"]
     assert data["incomplete"]["not_solved"] == ["trolley-cold"]
+    # a numerical failure is that result's failure (here of every result after the first):
+    # the run goes on, and all are written
+    monkeypatch.undo()
+    _stop_after(monkeypatch, 1, ValueError("element 17: frame lost"))
+    assert main(["solve", str(CASE), "-o", str(out)]) == 1
+    assert "not converged: trolley" in capsys.readouterr().err
+    data = json.loads((out / "results.json").read_text())
+    assert list(data["results"]) == NAMES and "incomplete" not in data
+    assert [data["results"][n]["converged"] for n in NAMES] == [True, False, False]
 
 
 def test_interrupt_before_any_result_keeps_the_earlier_set(tmp_path, capsys, monkeypatch):

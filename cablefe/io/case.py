@@ -55,8 +55,10 @@ Extensions to the interface page
     are still measured from ``[nodes]``.
 ``[shape]``: ``fabrication_temperature`` (temperature difference of the
     fabrication state from the analysis state, K) and ``max_iterations``.
-``[analysis]``: ``solver`` (one of :data:`SOLVERS`) and ``max_cuts``
-    (how often an increment may be halved).
+``[analysis]``: ``solver`` (one of :data:`SOLVERS`), ``max_cuts``
+    (how often an increment may be halved in a row), ``max_total_iterations``
+    and ``max_total_cuts`` (the work budget of one result: Newton iterations
+    and increment cuts over its whole load path).
 ``[design]``, ``[catalogues]``, fy on materials, Wy and Wz on sections
     Design checks and sizing: read by :mod:`cablefe.io.case_design`.
 ``[report]``
@@ -175,7 +177,8 @@ SHAPE_KEYS = ("method", "permanent", "tolerance", "targets", "adjust", "force_de
               "fabrication_temperature", "max_iterations")
 ADJUST_KEYS = ("members", "together")
 BEAM_REFERENCE_KEYS = ("position", "rotation")
-ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts")
+ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts",
+                 "max_total_iterations", "max_total_cuts")
 SHAPE_METHODS = ("target", "force-density")
 SOLVERS = ("auto", "superlu", "splu-default", "pardiso")
 
@@ -1206,6 +1209,10 @@ class _Reader:
                                     "analysis.max_iterations", 1),
             solver=solver,
             max_cuts=_integer(table.get("max_cuts", defaults.max_cuts), "analysis.max_cuts", 0),
+            max_total_iterations=_integer(table.get("max_total_iterations", defaults.max_total_iterations),
+                                          "analysis.max_total_iterations", 1),
+            max_total_cuts=_integer(table.get("max_total_cuts", defaults.max_total_cuts),
+                                    "analysis.max_total_cuts", 0),
         )
 
 
