@@ -251,3 +251,16 @@ def test_cli_prints_how_the_rough_sketch_was_shaped(tmp_path, capsys):
     assert "iteration 0: largest target miss" in out
     assert "start:" in out and "search:" in out and "iteration(s) in all" in out
     assert (tmp_path / "shaped.toml").exists() and (tmp_path / "shaped-cutting.csv").exists()
+
+
+def test_warnings_of_intermediate_shapes_are_held_back(caplog, tmp_path):
+    # this sketch passes through indefinite tangents on the way (logged as warnings by the
+    # solver for a result); the found shape has none, and they are no warnings about it
+    import logging
+    spec = _read(rough_sketch(CASES / "shaped_footbridge.toml", seed=7), tmp_path / "rough.toml")
+    with caplog.at_level(logging.INFO):
+        found = find_shape(spec)
+    assert found.equilibrium.converged and not found.equilibrium.outcome.warnings
+    assert not [r for r in caplog.records if r.name.startswith("cablefe.solvers.") and r.levelno >= logging.WARNING]
+    held = [r for r in caplog.records if "while searching:" in r.getMessage()]
+    assert held and all(r.levelno == logging.INFO for r in held)

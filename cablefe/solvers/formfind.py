@@ -61,6 +61,7 @@ All quantities SI (N, m, N/m).
 """
 from __future__ import annotations
 
+import contextlib
 import logging
 from dataclasses import dataclass, replace
 from types import MappingProxyType
@@ -311,6 +312,35 @@ def _equilibrium(model: Model, factors, settings, linear_solver) -> StaticResult
     if not res.converged:
         raise ShapeError(f"no equilibrium under the permanent loads: {res.outcome.message}")
     return res
+
+
+class _SearchNotes(logging.Filter):
+    """Warnings of the equilibria on the way (not results): kept at info level only."""
+
+    def filter(self, record):
+        if record.levelno == logging.WARNING:
+            log.info("while searching: %s", record.getMessage())
+            return False
+        return True
+
+
+@contextlib.contextmanager
+def _searching():
+    """Hold back the solver's warnings about intermediate shapes of a search.
+
+    A rough sketch passes through states (overstretched cables, indefinite
+    tangents) that say nothing about the found shape; the found shape's own
+    equilibrium is solved again afterwards, with its warnings.
+    """
+    notes = _SearchNotes()
+    loggers = [logging.getLogger(n) for n in ("cablefe.solvers.static", "cablefe.solvers.newton")]
+    for lg in loggers:
+        lg.addFilter(notes)
+    try:
+        yield
+    finally:
+        for lg in loggers:
+            lg.removeFilter(notes)
 
 
 def _movement(model: Model, result: StaticResult) -> float:
@@ -1039,8 +1069,9 @@ def find_shape(spec: CaseSpec, linear_solver: str | None = None,
         model, result, X = _settle(spec, model0, model0.to_site(fd.coordinates), L0, factors, settings,
                                    linear_solver)
     elif shape.method == "target":
-        model, result, X, L0, reports, iterations, notes = _target_shape(spec, model0, factors, settings,
-                                                                         linear_solver, progress)
+        with _searching():
+            model, result, X, L0, reports, iterations, notes = _target_shape(spec, model0, factors, settings,
+                                                                             linear_solver, progress)
     else:
         raise CaseError("shape.method", f'unknown form-finding method "{shape.method}" (known: target, force-density)')
     shaped = shaped_case(spec, model0, X, L0, result.state.rotations)
