@@ -449,9 +449,14 @@ class _Reader:
         shape = self.shape(data["shape"], cases) if "shape" in data else None
         analysis = self.analysis(data.get("analysis", {}))
         beam_reference = self.beam_reference(data.get("beam_reference", {}))
+        modes = None
+        if "modes" in data:   # validated and used (cablefe.io.case_modes)
+            from .case_modes import read_modes
+            names = [c.name for c in combinations] or list(dict.fromkeys(load.case for load in loads))
+            modes = read_modes(self, data["modes"], names)
         extra = {}
         for name in PASS_THROUGH_KEYS:
-            if name in data:
+            if name in data and name != "modes":
                 value = data[name]
                 if not (isinstance(value, Mapping)
                         or (isinstance(value, list) and all(isinstance(v, Mapping) for v in value))):
@@ -460,7 +465,8 @@ class _Reader:
         return CaseSpec(title=title, units=self.units, materials=materials, sections=sections,
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
-                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra)
+                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra,
+                        modes=modes)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:
