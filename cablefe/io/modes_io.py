@@ -39,7 +39,7 @@ DEFINITIONS = {
 
 
 def modes_dict(result: ModesResult, units) -> dict:
-    """The content of ``modes.json``."""
+    """The content of ``modes.json`` (may hold numpy scalars; see :func:`write_modes_json`)."""
     L = units.length_scale
     out = {
         "about": result.about,
@@ -100,9 +100,22 @@ def modes_dict(result: ModesResult, units) -> dict:
     return out
 
 
+def _plain(value):
+    """Numpy scalars and arrays to Python numbers and lists, recursively."""
+    if isinstance(value, dict):
+        return {k: _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    if isinstance(value, np.generic):
+        return value.item()
+    return value
+
+
 def write_modes_json(result: ModesResult, units, path) -> Path:
     with atomic_path(path) as tmp:
-        tmp.write_text(dumps_readable(modes_dict(result, units)), encoding="utf-8")
+        tmp.write_text(dumps_readable(_plain(modes_dict(result, units))), encoding="utf-8")
     return Path(path)
 
 

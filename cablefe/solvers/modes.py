@@ -267,7 +267,7 @@ def structure_axes(coords: np.ndarray, weights: np.ndarray | None = None) -> np.
 
 
 def kinetic_shares(shape: np.ndarray, node_mass: np.ndarray, coords: np.ndarray, axes: np.ndarray,
-                   bins: int = 100) -> dict[str, float]:
+                   bins: int = 100, rotational: np.ndarray | None = None) -> dict[str, float]:
     """Share of a mode's kinetic energy by kind, from lumped nodal masses.
 
     Longitudinal and lateral: the horizontal motion along and across the
@@ -275,7 +275,11 @@ def kinetic_shares(shape: np.ndarray, node_mass: np.ndarray, coords: np.ndarray,
     stations (``bins`` equal slices of the length): at each station the
     energy of the mean (mass-weighted) vertical motion is heave
     ("vertical"), the rest, nodes of one station moving against each
-    other, is twist ("torsional").
+    other, is twist ("torsional").  ``rotational`` (nn,) is the kinetic
+    energy of each node's rotations (beams' rotary and torsional inertia);
+    it goes to the kind of the axis the node turns about: the longitudinal
+    axis (torsional), the lateral axis (vertical bending), the vertical
+    axis (lateral bending).
     """
     u = shape[:, :3]
     along = u @ axes[0]
@@ -293,6 +297,16 @@ def kinetic_shares(shape: np.ndarray, node_mass: np.ndarray, coords: np.ndarray,
     e_up = float(np.sum(node_mass * up**2))
     twist = max(e_up - heave, 0.0)
     total = e_long + e_lat + e_up
+    if rotational is not None and np.any(rotational > 0):
+        theta = shape[:, 3:]
+        parts = np.stack([(theta @ axes[0]) ** 2, (theta @ axes[1]) ** 2, theta[:, 2] ** 2], axis=1)
+        norm = parts.sum(axis=1)
+        share = np.divide(parts, norm[:, None], out=np.zeros_like(parts), where=norm[:, None] > 0)
+        turn = (rotational[:, None] * share).sum(axis=0)
+        twist += turn[0]
+        heave += turn[1]
+        e_lat += turn[2]
+        total += float(turn.sum())
     if total <= 0:
         return {k: 0.0 for k in KINDS}
     return {"vertical": heave / total, "lateral": e_lat / total, "longitudinal": e_long / total,
@@ -384,6 +398,13 @@ def compute_modes(model: Model, result, spec, linear_solver: str | None = None) 
     for k in range(len(lam)):
         shapes[k][have] = g[model.dof[have], k]
     nodal = _lumped_node_mass(model, per_length, node_mass)
+    spin = None
+    if model.has_rotations:
+        # kinetic energy of each node's rotations: phi_i (M phi)_i summed over its rotation DOFs
+        energy = np.zeros((model.ndof, len(lam)))
+        energy[free] = phi * (M @ phi)
+        rot = np.where(model.dof[:, 3:] >= 0, model.dof[:, 3:], 0)
+        spin = (energy[rot] * (model.dof[:, 3:, None] >= 0)).sum(axis=1).T   # (k, nn)
     coords = result.state.positions
     pedestrian_info = None
     lane = None
@@ -409,7 +430,7 @@ def compute_modes(model: Model, result, spec, linear_solver: str | None = None) 
         peak = float(np.max(np.linalg.norm(shapes[k][:, :3], axis=1)))
         eff = participation[k] ** 2
         ratio = np.divide(eff, mobile, out=np.zeros(3), where=mobile > 0)
-        shares = kinetic_shares(shapes[k], nodal, coords, axes)
+        shares = kinetic_shares(shapes[k], nodal, coords, axes, rotational=None if spin is None else spin[k])
         kind = max(KINDS, key=lambda name: shares[name])
         check = None
         if spec.pedestrians is not None:
