@@ -524,3 +524,19 @@ def test_a_mechanism_is_one_line_and_exit_2(tmp_path, capsys):
     assert main(["modes", str(path), "-o", str(tmp_path / "out")]) == 2
     err = capsys.readouterr().err.strip()
     assert err.count("\n") == 0 and "stiffness" in err
+
+
+def test_run_on_a_generated_footbridge_reports_modes_and_comfort(tmp_path, capsys):
+    import json
+    from pathlib import Path
+    from cablefe.cli import main
+    case = Path(__file__).resolve().parent.parent / "cases" / "generated-suspension.toml"
+    out = tmp_path / "out"
+    assert main(["run", str(case), "-o", str(out), "--only", "permanent"]) == 0
+    data = json.loads((out / "modes.json").read_text())
+    assert data["about"] == "permanent" and len(data["modes"]) == 12
+    assert all("pedestrians" in m for m in data["modes"])
+    # the members' mass is their self-weight / g; the superimposed deck load is the added mass
+    assert abs(data["own_mass"] - data["self_weight_mass"]) <= 1e-9 * data["self_weight_mass"]
+    kinds = {m["kind"] for m in data["modes"]}
+    assert {"vertical", "lateral", "torsional"} <= kinds
