@@ -231,11 +231,25 @@ def lowest_modes(K: sp.spmatrix, M: sp.spmatrix, count: int, solver: str | linea
 
     op = spla.LinearOperator((n, n), matvec=solve, dtype=float)
     v0 = np.random.default_rng(20261204).standard_normal(n)   # reproducible runs
-    lam, phi = spla.eigsh(K, k=count, M=M, sigma=sigma, which="LM", OPinv=op, v0=v0,
-                          ncv=min(n, max(2 * count + 1, 20)))
+    with _single_threaded_blas():
+        lam, phi = spla.eigsh(K, k=count, M=M, sigma=sigma, which="LM", OPinv=op, v0=v0,
+                              ncv=min(n, max(2 * count + 1, 20)))
     order = np.argsort(lam)
     info.update(method="shift-invert Lanczos", shift=sigma, solves=calls[0])
     return lam[order], phi[:, order], info
+
+
+def _single_threaded_blas():
+    """OpenBLAS on one thread for ARPACK's loop.
+
+    ARPACK's work between solves is matrix-vector products of n x ncv
+    blocks, far too small to share between threads; with 2 threads on a
+    busy 2-core machine the spinning threads made it 6x slower (measured,
+    benchmarks/README.md).  MKL (PARDISO's solves) keeps its threads.
+    """
+    from threadpoolctl import threadpool_info, threadpool_limits
+    prefixes = {i["prefix"] for i in threadpool_info() if i.get("internal_api") == "openblas"}
+    return threadpool_limits(limits={p: 1 for p in prefixes})
 
 
 class _Singular(Exception):
