@@ -199,9 +199,10 @@ def check_mode(frequency: float, kind: str, lane_amplitude_integral: float, lane
     ----------
     frequency : Hz
     kind : the mode's kind (decides the direction)
-    lane_amplitude_integral : ∫|phi_d| ds over the lane for the mass-normalised
-        mode (phi^T M phi = 1), its component ``phi_d`` in the direction, m^(1/2)... (m/√kg · m)
-    lane_peak : largest |phi_d| on the lane (same normalisation)
+    lane_amplitude_integral : ∫|phi_d| ds over the lane, m²/√kg, for the
+        mass-normalised mode (phi^T M phi = 1 kg) and its component ``phi_d``
+        in the direction
+    lane_peak : largest |phi_d| on the lane (same normalisation), m/√kg
     area : loaded area S = width × lane length, m²
     width : walkway width per lane line, m
     density : pedestrians per m²

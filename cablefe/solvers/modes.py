@@ -181,8 +181,14 @@ def _lumped_node_mass(model: Model, per_length: dict, node_mass: np.ndarray) -> 
 
 # -- the eigenproblem ---------------------------------------------------------------
 
-def tangent_at(model: Model, result) -> sp.csr_matrix:
-    """Symmetrised tangent stiffness of the free DOFs at a converged result's state."""
+def tangent_at(model: Model, result):
+    """Symmetrised tangent stiffness of the free DOFs at a converged result's state.
+
+    Returns
+    -------
+    K : csr_matrix (nfree, nfree), N/m (N, N m/rad on rotations)
+    responses : family -> element response at the state (beam frames for the mass)
+    """
     assembler = Assembler(model)
     assembler.remember(result.responses)   # the catenary end forces of the state as warm start
     loads = model.combined_loads(result.factors)
