@@ -209,12 +209,13 @@ def cmd_solve(args, shape_first=False) -> int:
 
     results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
     written = write_results(results, out)
+    modes_status = 0
+    if shape_first and model.spec.modes is not None:   # after solve (and studies), before design and report
+        modes_status = cmd_modes(args, model, results)
     if shape_first:  # `run` adds plots and a report
         from .io.report import write_report
         note = f"Shaped first: `{case}` with its cutting table beside it." if case != args.case else ""
         written += write_report(results, out, case, CAUTION, note)
-        if model.spec.modes is not None:   # after solve (and studies), before design
-            modes_status = cmd_modes(args, model, results)
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
     _summary(results)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
@@ -223,7 +224,7 @@ def cmd_solve(args, shape_first=False) -> int:
         bad = [r.name for r in results.items if not r.converged]
         print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json)", file=sys.stderr)
         return 1
-    if shape_first and model.spec.modes is not None and modes_status:
+    if modes_status:
         return modes_status
     return 0
 

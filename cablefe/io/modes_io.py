@@ -101,15 +101,17 @@ def modes_dict(result: ModesResult, units) -> dict:
 
 
 def _plain(value):
-    """Numpy scalars and arrays to Python numbers and lists, recursively."""
+    """Numpy scalars and arrays to Python numbers and lists, recursively; non-finite -> None."""
     if isinstance(value, dict):
         return {k: _plain(v) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
         return [_plain(v) for v in value]
     if isinstance(value, np.ndarray):
-        return value.tolist()
+        return _plain(value.tolist())
     if isinstance(value, np.generic):
-        return value.item()
+        value = value.item()
+    if isinstance(value, float) and not np.isfinite(value):
+        return None    # JSON has no infinity (e.g. the modal mass of a mode the lane does not feel)
     return value
 
 
