@@ -62,7 +62,7 @@ def solved_modes(text):
 
 # -- taut string and the shallow cable's swinging modes ------------------------------
 
-def test_taut_string_frequencies_are_bracketed_by_lumped_and_consistent_mass():
+def test_taut_string_frequencies_are_bracketed_by_lumped_and_consistent_mass(verify):
     # source: taut string f_n = (n / 2l) sqrt(T / m) (classical; shared/validation.md, Dynamics).
     # Linear elements: the discrete n-th frequency is off by about (n pi / N)^2 / 24, too high
     # with consistent mass and too low with lumped mass (dispersion of the discrete string).
@@ -75,14 +75,19 @@ def test_taut_string_frequencies_are_bracketed_by_lumped_and_consistent_mass():
             exact = n / (2 * l) * np.sqrt(T / m)
             pair = f[2 * n - 2:2 * n]       # a vertical and a lateral mode of equal frequency
             err = (n * np.pi / N) ** 2 / 24
-            assert_allclose(pair, exact * (1 + sign * err), rtol=0.1 * err)
+            verify.check(f"taut string, mode pair {n}, {mm} mass, 60 elements (with the discrete "
+                         "dispersion (n pi / N)^2 / 24)",
+                         "classical taut string f_n = (n / 2l) sqrt(T / m)", pair,
+                         exact * (1 + sign * err), rtol=0.1 * err, unit="Hz")
         assert found.orthogonality < 1e-10
         assert {found.modes[0].kind, found.modes[1].kind} == {"vertical", "lateral"}
 
 
 def sagging_cable_case(EA, n=80, count=10, extra=""):
     # span 100 m, weight 100 N/m: unstressed length for a sag of about 2 m (sag ratio 1/50)
-    L0 = 100.0 * (1 + 8 / 3 * 0.02 ** 2)
+    # with the stretch under H = w l^2 / (8 d) taken off (parabolic cable, Irvine 1981, ch. 2)
+    H = 100.0 * 100.0 ** 2 / (8 * 2.0)
+    L0 = 100.0 * (1 + 8 / 3 * 0.02 ** 2) / (1 + H / EA)
     return f"""
 [units]
 length = "m"
@@ -126,7 +131,7 @@ def _cable_state(model, found):
     return H, m
 
 
-def test_shallow_cable_swinging_modes():
+def test_shallow_cable_swinging_modes(verify):
     # source: Irvine & Caughey 1974, Proc. R. Soc. A 341, 299-315 (out-of-plane modes of a
     # shallow cable: f_n = (n / 2l) sqrt(H / m), m per span length).  Shallow-cable theory
     # neglects terms of order (sag/span)^2 = 4e-4; discretisation (n pi / 80)^2 / 24 < 2e-3.
@@ -135,7 +140,9 @@ def test_shallow_cable_swinging_modes():
     H, m = _cable_state(model, found)
     lateral = [md.frequency for md in found.modes if md.energy["lateral"] > 0.99][:3]
     exact = np.array([n / 200.0 * np.sqrt(H / m) for n in (1, 2, 3)])
-    assert_allclose(lateral, exact, rtol=3e-3)
+    verify.check("out-of-plane modes 1-3 of a shallow cable (sag 1/50), 80 catenary elements",
+                 "Irvine & Caughey 1974, Proc. R. Soc. A 341, f_n = (n / 2l) sqrt(H / m)",
+                 lateral, exact, rtol=3e-3, unit="Hz")
 
 
 def _symmetric_roots(lam2, count):
@@ -147,7 +154,7 @@ def _symmetric_roots(lam2, count):
 
 
 @pytest.mark.parametrize("lam2_target", [12.0, 120.0])
-def test_sagging_cable_in_plane_modes_below_and_above_the_crossover(lam2_target):
+def test_sagging_cable_in_plane_modes_below_and_above_the_crossover(lam2_target, verify):
     # source: Irvine & Caughey 1974, Proc. R. Soc. A 341, 299-315 (also Irvine 1981, Cable
     # Structures, ch. 3): antisymmetric in-plane modes omega_n = (2 n pi / l) sqrt(H/m); symmetric
     # ones solve tan(w/2) = w/2 - (4/lam^2)(w/2)^3, w = omega l / sqrt(H/m),
@@ -172,7 +179,10 @@ def test_sagging_cable_in_plane_modes_below_and_above_the_crossover(lam2_target)
     f = np.array([md.frequency for md in in_plane[:3]])
     expected = np.sort(antisym + sym)[:3]
     # shallow-cable theory drops terms of order (d/l)^2 and the cable's axial inertia: 1 %
-    assert_allclose(f, expected, rtol=1e-2)
+    verify.check(f"lowest 3 in-plane modes of a sagging cable, lambda^2 = {lam2:.3g} "
+                 f"({'below' if lam2 < 4 * np.pi ** 2 else 'above'} the crossover)",
+                 "Irvine & Caughey 1974, Proc. R. Soc. A 341 (symmetric: tan(w/2) = w/2 - (4/lam^2)(w/2)^3; "
+                 "antisymmetric: omega_n = (2 n pi / l) sqrt(H/m))", f, expected, rtol=1e-2, unit="Hz")
     first_symmetric_lower = sym[0] < antisym[0]
     assert first_symmetric_lower == (lam2 < 4 * np.pi ** 2)
     # the lowest in-plane mode is symmetric about midspan exactly when theory says so
@@ -221,7 +231,7 @@ SIMPLY = 'N0 = "x y z rx"\nN{last} = "y z"'
 CANTILEVER = 'N0 = "all"'
 
 
-def test_simply_supported_beam_frequencies_converge_at_fourth_order():
+def test_simply_supported_beam_frequencies_converge_at_fourth_order(verify):
     # source: Blevins 1979, Formulas for Natural Frequency and Mode Shape, table 8-1
     # (simply supported Euler-Bernoulli beam: f_n = (n^2 pi / 2 L^2) sqrt(EI / m)), with the
     # section's rotary inertia (Rayleigh beam) exactly: omega^2 = EI k^4 / (m (1 + r^2 k^2)),
@@ -242,12 +252,16 @@ def test_simply_supported_beam_frequencies_converge_at_fourth_order():
             # (h the element length; the fitted rate below confirms the order)
             bound = (k * L / n) ** 4 / 1440
             assert np.all(vertical > exact)
+            verify.check("simply supported beam, vertical modes 1-2, 16 beam elements",
+                         "Blevins 1979, Formulas for Natural Frequency and Mode Shape, table 8-1, with "
+                         "Rayleigh's rotary-inertia term (Theory of Sound 1877, §186; from memory)",
+                         vertical, exact, rtol=1.5 * float(bound.max()), unit="Hz")
             assert np.all(np.abs(vertical / exact - 1) < 1.5 * bound)
     rate = np.polyfit(np.log([4, 8, 16]), np.log(errors), 1)[0]
     assert -4.6 < rate < -3.4
 
 
-def test_cantilever_frequencies_vertical_and_lateral():
+def test_cantilever_frequencies_vertical_and_lateral(verify):
     # source: Blevins 1979, Formulas for Natural Frequency and Mode Shape, table 8-1
     # (clamped-free beam: lambda_1 = 1.87510407, lambda_2 = 4.69409113; f = lambda^2/(2 pi L^2)
     # sqrt(EI/m)); lambda from the root of cos(l) cosh(l) + 1 = 0, computed here.
@@ -260,10 +274,12 @@ def test_cantilever_frequencies_vertical_and_lateral():
         exact = [x ** 2 / (2 * np.pi * L ** 2) * np.sqrt(E * I / m) for x in lam]
         # rotary inertia of the section (r^2 = I/A <= 8e-4 m^2) lowers f_2 by about
         # (lambda_2 r / L)^2 / 2 < 1e-4
-        assert_allclose(f, exact, rtol=2e-4)
+        verify.check(f"cantilever, {kind} modes 1-2, 20 beam elements",
+                     "Blevins 1979, Formulas for Natural Frequency and Mode Shape, table 8-1 "
+                     "(roots of cos l cosh l + 1 = 0 by scipy)", f, exact, rtol=2e-4, unit="Hz")
 
 
-def test_beam_mass_matrix_moves_rigidly_with_the_section():
+def test_beam_mass_matrix_moves_rigidly_with_the_section(verify):
     # source: rigid-body kinetic energy (exact): a translation carries the mass m L, a rotation
     # about a transverse axis through the midpoint the inertia m L^3 / 12 + rho I L.
     rng = np.random.default_rng(3)
@@ -281,7 +297,9 @@ def test_beam_mass_matrix_moves_rigidly_with_the_section():
         w = frame[:, axis]
         u = np.concatenate([np.cross(w, xi - mid), w, np.cross(w, xj - mid), w])
         expected = rot * L + (0.0 if axis == 0 else m * L ** 3 / 12)
-        assert_allclose(u @ M @ u, expected, rtol=1e-12)
+        verify.check(f"beam consistent mass: rigid rotation about local axis {'xyz'[axis]}",
+                     "rigid-body kinetic energy (exact): m L^3 / 12 + rho I L", u @ M @ u, expected,
+                     rtol=1e-12, unit="kg m^2")
     assert_allclose(M, M.T, atol=1e-12)
     Mb = bar.mass_matrix([L], [m], lumped=False)[0]
     assert_allclose(np.ones(6) @ Mb @ np.ones(6) / 3, m * L, rtol=1e-12)
@@ -348,7 +366,7 @@ masses = [{{ node = "C", mass = "0.5 t" }}, {{ members = "R", per_length = 40 }}
 """
 
 
-def test_effective_masses_of_all_modes_sum_to_the_mobile_mass():
+def test_effective_masses_of_all_modes_sum_to_the_mobile_mass(verify):
     # source: completeness of the M-orthonormal modes (exact): sum_k (phi_k^T M r)^2 = r^T M r.
     model = model_of(frame_case(count=1000))
     found = modes_of(model)
@@ -356,7 +374,8 @@ def test_effective_masses_of_all_modes_sum_to_the_mobile_mass():
     n = int((~model.restrained).sum())
     assert len(found.modes) == n
     total = np.sum([md.effective_mass for md in found.modes], axis=0)
-    assert_allclose(total, found.mobile_mass, rtol=1e-9)
+    verify.check("sum of the effective masses of all modes of a small frame (x, y, z)",
+                 "completeness of M-orthonormal modes (exact)", total, found.mobile_mass, rtol=1e-9, unit="kg")
     assert_allclose(np.sum([md.effective_mass_ratio for md in found.modes], axis=0), 1.0, rtol=1e-9)
     # added masses: 500 kg on C and 40 kg/m on the 6.08 m rafter
     rafter = np.linalg.norm([6, 1, 0.5])
@@ -364,25 +383,31 @@ def test_effective_masses_of_all_modes_sum_to_the_mobile_mass():
     assert_allclose(found.own_mass, found.self_weight_mass, rtol=1e-12)
 
 
-def test_lanczos_agrees_with_the_dense_solution():
+def test_lanczos_agrees_with_the_dense_solution(verify):
     # source: scipy.linalg.eigh on the same matrices (an independent dense eigensolver)
     model = model_of(frame_case(count=5))
     found = modes_of(model)
     assert found.method == "shift-invert Lanczos"
     dense = modes_of(model_of(frame_case(count=1000)))
-    assert_allclose([m.frequency for m in found.modes], [m.frequency for m in dense.modes[:5]], rtol=1e-9)
+    verify.check("5 lowest modes of a small frame by shift-invert Lanczos",
+                 "scipy.linalg.eigh on the same matrices (dense)", [m.frequency for m in found.modes],
+                 [m.frequency for m in dense.modes[:5]], rtol=1e-9, unit="Hz")
     assert found.orthogonality < 1e-9
 
 
-def test_frequencies_scale_with_the_root_of_stiffness_over_mass():
+def test_frequencies_scale_with_the_root_of_stiffness_over_mass(verify):
     # source: omega^2 = k / m (exact): 9 E and 4 rho give 1.5 f for an unstressed structure
     base = modes_of(model_of(beam_case(8, SIMPLY)))
     scaled = modes_of(model_of(beam_case(8, SIMPLY, E=9 * 2.1e11, rho=4 * 7850.0)))
-    assert_allclose([m.frequency for m in scaled.modes], [1.5 * m.frequency for m in base.modes], rtol=1e-9)
+    verify.check("beam frequencies with 9 E and 4 rho", "omega^2 = k / m (exact): 1.5 times",
+                 [m.frequency for m in scaled.modes], [1.5 * m.frequency for m in base.modes], rtol=1e-9,
+                 unit="Hz")
     # a cable under its own weight: E and rho scaled together keep the shape and the tension
     # per unit mass, so every frequency stays
-    a = modes_of(model_of(sagging_cable_case(EA=1e8, n=20, count=4)))
-    text = sagging_cable_case(EA=3e8, n=20, count=4).replace("unit_weight = 100.0", "unit_weight = 300.0")
+    text = sagging_cable_case(EA=1e8, n=20, count=4)
+    a = modes_of(model_of(text))
+    assert "E = 100000000.0" in text
+    text = text.replace("E = 100000000.0", "E = 300000000.0").replace("unit_weight = 100.0", "unit_weight = 300.0")
     b = modes_of(model_of(text))
     assert_allclose([m.frequency for m in b.modes], [m.frequency for m in a.modes], rtol=1e-7)
 
@@ -407,7 +432,7 @@ damping = {damping}
 
 
 @pytest.mark.parametrize("density", [0.5, 1.2])
-def test_resonant_acceleration_of_a_simply_supported_girder(density):
+def test_resonant_acceleration_of_a_simply_supported_girder(density, verify):
     # source: steady-state resonance of one mode, a = F* / (2 xi M*) (Heinemeyer et al. 2009,
     # Design of Lightweight Footbridges for Human Induced Vibrations, EUR 23984 EN; from
     # memory); for sin(pi x / L) under p per length in the mode's sign, F* = 2 p L / pi and
@@ -430,7 +455,10 @@ def test_resonant_acceleration_of_a_simply_supported_girder(density):
     # two known small departures, both lowering a: the lane integral of the shape
     # interpolated linearly between 40 nodes, (pi / 40)^2 / 12 = 5e-4, and the section's rotary
     # inertia in M*, (pi r / L)^2 = 5e-4 (r^2 = I / A)
-    assert_allclose(c.acceleration, 2 * p / (np.pi * xi * m), rtol=2e-3)
+    verify.check(f"resonant peak acceleration of a 30 m simply supported girder, {density} P/m^2",
+                 "a = 2 p / (pi xi m) for sin(pi x / L) (closed form); p = P n' psi b by Heinemeyer et al. "
+                 "2009, EUR 23984 EN (from memory)", c.acceleration, 2 * p / (np.pi * xi * m), rtol=2e-3,
+                 unit="m/s^2")
     assert c.comfort_class == (1 if c.acceleration <= 0.5 else 2 if c.acceleration <= 1.0 else
                                3 if c.acceleration <= 2.5 else 4)
 
