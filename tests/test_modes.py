@@ -568,3 +568,30 @@ def test_run_on_a_generated_footbridge_reports_modes_and_comfort(tmp_path, capsy
     assert abs(data["own_mass"] - data["self_weight_mass"]) <= 1e-9 * data["self_weight_mass"]
     kinds = {m["kind"] for m in data["modes"]}
     assert {"vertical", "lateral", "torsional"} <= kinds
+
+
+def test_slack_members_are_left_out_of_the_stiffness():
+    # a weightless tension-only guy from the string's midpoint to the ground: slack, it must not
+    # change a frequency; pretensioned, it stiffens the vertical modes
+    base = string_case(n=4, count=4)
+    guy = """
+[materials.light]
+E = "200 GPa"
+unit_weight = 0
+[sections.guy]
+material = "light"
+area = "1e-4 m^2"
+[[members]]
+id = "G"
+type = "bar"
+nodes = ["S.2", "P"]
+section = "guy"
+tension_only = true
+{length}
+"""
+    ground = base.replace('B = [10, 0, 0]', 'B = [10, 0, 0]\nP = [5, 0, -3]').replace('B = "all"', 'B = "all"\nP = "all"')
+    alone = [m.frequency for m in modes_of(model_of(base)).modes]
+    slack = [m.frequency for m in modes_of(model_of(ground.replace("[[loads]]", guy.format(length="length0 = 3.5") + "\n[[loads]]"))).modes]
+    taut = [m.frequency for m in modes_of(model_of(ground.replace("[[loads]]", guy.format(length="pretension = 500") + "\n[[loads]]"))).modes]
+    assert_allclose(slack, alone, rtol=1e-12)
+    assert taut[1] > 2 * alone[1]    # the first vertical mode is held at midspan by the guy

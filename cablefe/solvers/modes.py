@@ -57,9 +57,12 @@ CABLE_DIVISION_NOTE = (
 KINDS = ("vertical", "lateral", "longitudinal", "torsional")
 MASS_MATRICES = ("consistent", "lumped")
 
-#: a mode whose eigenvalue is below this fraction of the median diagonal
-#: ratio K_ii / M_ii has (nearly) zero stiffness: a mechanism
-ZERO_STIFFNESS = 1e-10
+#: a mode whose eigenvalue is below this fraction of the largest diagonal
+#: ratio K_ii / M_ii has (nearly) zero stiffness: a mechanism.  Real soft
+#: modes sit far above it: the lowest mode of a cable of N elements with
+#: tension T is about (T / EA) / N^2 of the ratio (1e-10 for T/EA = 1e-4,
+#: N = 1000); a zero mode computes to round-off, ~1e-16 of it.
+ZERO_STIFFNESS = 1e-12
 #: largest accepted |Phi^T M Phi - I| of the computed, mass-normalised modes
 ORTHOGONALITY_TOL = 1e-6
 
@@ -217,6 +220,7 @@ def lowest_modes(K: sp.spmatrix, M: sp.spmatrix, count: int, solver: str | linea
     ratio = diagK[(diagK > 0) & (diagM > 0)] / diagM[(diagK > 0) & (diagM > 0)]
     scale = float(np.median(ratio)) if ratio.size else 1.0
     info["scale"] = scale
+    info["largest_ratio"] = float(ratio.max()) if ratio.size else 1.0
     if count + 2 > n:
         lam, phi = sla.eigh(K.toarray(), M.toarray())
         return lam[:count], phi[:, :count], info
@@ -393,7 +397,7 @@ def compute_modes(model: Model, result, spec, linear_solver: str | None = None) 
         where = ", ".join(f"{n} {d}" for n, d in (model.describe_dof(int(free[e])) for e in eqs))
         raise ModesError(f'the tangent at "{result.name}" is singular (a mechanism'
                          + (f": {where}" if where else "") + "); restrain it or check slack members") from None
-    scale = info["scale"]
+    scale = info["largest_ratio"]
     if lam[0] < ZERO_STIFFNESS * scale:
         v = np.abs(phi[:, 0])
         worst = np.argsort(v)[::-1][:6]
