@@ -10,7 +10,7 @@ from scipy.optimize import brentq
 import cablefe
 from cablefe.elements import bar, beam
 from cablefe.io.case import parse_case
-from cablefe.solvers.modes import ModesError, compute_modes, lowest_modes
+from cablefe.solvers.modes import ModesError
 from cablefe.vibration import modes as modes_of
 
 G = 9.80665
@@ -595,3 +595,20 @@ tension_only = true
     taut = [m.frequency for m in modes_of(model_of(ground.replace("[[loads]]", guy.format(length="pretension = 500") + "\n[[loads]]"))).modes]
     assert_allclose(slack, alone, rtol=1e-12)
     assert taut[1] > 2 * alone[1]    # the first vertical mode is held at midspan by the guy
+
+
+def test_lane_integral_of_a_sign_changing_element_matches_quadrature():
+    # source: scipy.integrate.quad of |a + (b - a) s / L| (an independent evaluation)
+    from scipy.integrate import quad
+    from cablefe.dynamics.pedestrians import lane_integral, reduction
+    rng = np.random.default_rng(5)
+    a, b, L = rng.standard_normal(20), rng.standard_normal(20), rng.uniform(0.5, 3.0, 20)
+    expected = sum(quad(lambda s, a=a_, b=b_, L=L_: abs(a + (b - a) * s / L), 0, L_,
+                        points=[L_ * a_ / (a_ - b_)] if a_ * b_ < 0 else None, epsabs=1e-13)[0]
+                   for a_, b_, L_ in zip(a, b, L))
+    assert_allclose(lane_integral(a, b, L), expected, rtol=1e-10)
+    # psi: 0 outside the corner points, linear between them
+    corners = [[1.25, 0.0], [1.7, 1.0], [2.1, 1.0], [2.3, 0.0]]
+    assert reduction(1.0, corners) == 0.0 and reduction(2.5, corners) == 0.0
+    assert_allclose(reduction(1.475, corners), 0.5, rtol=1e-12)
+    assert reduction(1.9, corners) == 1.0
