@@ -147,7 +147,7 @@ def write_modes_mesh(model, result: ModesResult, folder) -> list[Path]:
 
 def plot_modes(model, result: ModesResult, path, count: int = PLOTTED_MODES) -> Path:
     """The lowest shapes: elevation for vertical, torsional and longitudinal modes, plan for lateral ones."""
-    from .report import _pyplot, _save
+    from ..report.plots import _pyplot, _save
     from matplotlib.collections import LineCollection
     plt = _pyplot()
     L = model.spec.units.length_scale
