@@ -190,6 +190,51 @@ class AnalysisSettings:
 
 
 @dataclass(frozen=True)
+class AddedMass:
+    """Mass beyond the members' own weight (``[modes] masses``).
+
+    Either ``node`` with ``mass`` (kg, on its three translations) or
+    ``members`` (patterns) with ``per_length`` (kg per m of each element's
+    unstressed length).
+    """
+
+    node: str | None = None
+    mass: float = 0.0                 # kg
+    members: tuple[str, ...] = ()
+    per_length: float = 0.0           # kg/m
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class PedestrianSpec:
+    """``[modes.pedestrians]``: comfort check of a deck under a pedestrian stream.
+
+    ``constants`` holds the guideline constants the case overrides (names of
+    :data:`cablefe.dynamics.pedestrians.CONSTANTS`, SI values); the rest
+    come from that table.
+    """
+
+    lane: tuple[str, ...]             # member patterns walked on
+    width: float                      # m, walkway width carried by each lane line
+    density: float                    # pedestrians per m^2
+    damping: float                    # damping ratio
+    constants: Mapping[str, Any] = field(default_factory=dict)
+    key: str = "modes.pedestrians"
+
+
+@dataclass(frozen=True)
+class ModesSpec:
+    """``[modes]``: natural modes about a converged state."""
+
+    about: str | None = None          # result name; None: the first result
+    count: int = 12
+    masses: tuple[AddedMass, ...] = ()
+    mass_matrix: str = "consistent"   # bars and cables: "consistent" | "lumped"
+    pedestrians: PedestrianSpec | None = None
+    key: str = "modes"
+
+
+@dataclass(frozen=True)
 class CaseSpec:
     """A whole validated case in SI units."""
 
@@ -209,6 +254,7 @@ class CaseSpec:
     source: str | None = None          # path of the file read, if any
     raw: Mapping[str, Any] | None = None  # the parsed TOML, kept for faithful rewriting
     extra: Mapping[str, Any] = field(default_factory=dict)  # tables for later studies
+    modes: ModesSpec | None = None     # ``[modes]``
     # ``[design]`` with its ``[[design.size]]`` groups, and ``[catalogues.*]``
     design: "DesignSpec | None" = None
     catalogues: Mapping[str, "Catalogue"] = field(default_factory=dict)

@@ -152,7 +152,7 @@ __all__ = [
 
 TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
                   "loads", "combinations", "shape", "analysis", "node_table", "member_table",
-                  "beam_reference", "design", "catalogues")
+                  "beam_reference", "design", "catalogues", "modes")
 #: Top-level tables validated here and kept in ``CaseSpec.extra`` for the
 #: features that read them.
 PASS_THROUGH_KEYS = ("report",)
@@ -161,7 +161,6 @@ PASS_THROUGH_KEYS = ("report",)
 #: lands removes its entry here (and validates its table in the reader).
 NOT_IMPLEMENTED: Mapping[str, str] = {
     "studies": "studies (parameter, load-position and sensitivity runs)",
-    "modes": "natural frequencies and mode shapes",
 }
 REPORT_KEYS = ("deck",)
 MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha", "fy")
@@ -511,6 +510,11 @@ class _Reader:
         shape = self.shape(data["shape"], cases) if "shape" in data else None
         analysis = self.analysis(data.get("analysis", {}))
         beam_reference = self.beam_reference(data.get("beam_reference", {}))
+        modes = None
+        if "modes" in data:   # validated and used (cablefe.io.case_modes)
+            from .case_modes import read_modes
+            names = [c.name for c in combinations] or list(dict.fromkeys(load.case for load in loads))
+            modes = read_modes(self, data["modes"], names)
         extra = {}
         if "report" in data:
             extra["report"] = self.report(data["report"])
@@ -520,7 +524,7 @@ class _Reader:
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
                         beam_reference=beam_reference, source=self.source, raw=data, extra=extra,
-                        design=design, catalogues=catalogues)
+                        design=design, catalogues=catalogues, modes=modes)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:
