@@ -104,6 +104,16 @@ def cmd_check(args) -> int:
     return 0
 
 
+def _stability(outcome) -> str:
+    """The stability of the last converged state, in words."""
+    n = outcome.negative_pivots[-1] if outcome.negative_pivots else None
+    if n is None:
+        return "not determined"
+    if n == 0:
+        return "stable (no negative pivot of the tangent stiffness)"
+    return f"UNSTABLE ({n} negative pivot(s) of the tangent stiffness)"
+
+
 def _summary(results) -> None:
     import numpy as np
     m = results.model
@@ -116,6 +126,7 @@ def _summary(results) -> None:
         j = int(np.argmax(mf.max_tension)) if len(mf.max_tension) else 0
         flag = "converged" if o.converged else f"NOT CONVERGED ({o.message})"
         print(f"  {res.name}: {flag}; load factor {o.load_factor:.3f}, {o.iterations} iterations")
+        print(f"    stability: {_stability(o)}")
         for w in o.warnings:
             print(f"    WARNING: {w}")
         if len(disp):

@@ -182,6 +182,8 @@ class AnalysisSettings:
     max_iterations: int = 30
     solver: str = "auto"              # linear solver backend
     max_cuts: int = 12                # extension: how often an increment may be halved
+    control: str = "load"             # "load" | "arc-length": how the path to λ = 1 is followed
+    track: tuple[str, ...] = ()       # node ids whose displacements every converged step records
 
 
 @dataclass(frozen=True)

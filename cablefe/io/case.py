@@ -56,7 +56,10 @@ Extensions to the interface page
 ``[shape]``: ``fabrication_temperature`` (temperature difference of the
     fabrication state from the analysis state, K) and ``max_iterations``.
 ``[analysis]``: ``solver`` (one of :data:`SOLVERS`) and ``max_cuts``
-    (how often an increment may be halved).
+    (how often an increment may be halved); ``control`` (one of
+    :data:`CONTROLS`: load control, or arc length through limit points) and
+    ``track`` (node ids whose displacements each converged step records in
+    the result's ``path``).
 ``[design]``, ``[studies]``, ``[modes]``, ``[report]``
     Accepted as tables (or arrays of tables) and passed through unvalidated
     in ``CaseSpec.extra`` for the features that read them.
@@ -143,7 +146,8 @@ SHAPE_KEYS = ("method", "permanent", "tolerance", "targets", "adjust", "force_de
               "fabrication_temperature", "max_iterations")
 ADJUST_KEYS = ("members", "together")
 BEAM_REFERENCE_KEYS = ("position", "rotation")
-ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts")
+ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts", "control", "track")
+CONTROLS = ("load", "arc-length")
 SHAPE_METHODS = ("target", "force-density")
 SOLVERS = ("auto", "superlu", "splu-default", "pardiso")
 
@@ -1059,7 +1063,25 @@ class _Reader:
                                     "analysis.max_iterations", 1),
             solver=solver,
             max_cuts=_integer(table.get("max_cuts", defaults.max_cuts), "analysis.max_cuts", 0),
+            **self.path_control(table),
         )
+
+    def path_control(self, table) -> dict:
+        """``[analysis]`` ``control`` and ``track`` as AnalysisSettings fields."""
+        control = _string(table.get("control", "load"), "analysis.control")
+        if control not in CONTROLS:
+            raise CaseError("analysis.control", f'unknown control "{control}"' + _suggest(control, CONTROLS))
+        track = table.get("track", [])
+        if not isinstance(track, list):
+            raise CaseError("analysis.track", f"expected an array of node ids, found {describe_value(track)}")
+        names = tuple(self.node(n, f"analysis.track[{k}]") for k, n in enumerate(track))
+        seen: dict[str, int] = {}
+        for k, n in enumerate(names):
+            if n in seen:
+                raise CaseError(f"analysis.track[{k}]", f'node "{n}" is tracked twice '
+                                f"(first at analysis.track[{seen[n]}])")
+            seen[n] = k
+        return {"control": control, "track": names}
 
 
 # ---------------------------------------------------------------------------

@@ -154,6 +154,12 @@ def report_text(results, case_path, caution: str, figures: dict, shape_note: str
                      f"| {mf.max_tension[j] / F:.4g} | {m.members[j].id} | {int(mf.slack.sum())} |")
     lines.append("")
     for r in results.items:
+        n = r.outcome.negative_pivots[-1] if r.outcome.negative_pivots else None
+        state = ("not determined" if n is None else "stable" if n == 0
+                 else f"**unstable** ({n} negative pivot(s) of the tangent stiffness)")
+        lines.append(f"- {r.name}: stability at load factor {r.outcome.load_factor:.3f}: {state}")
+    lines.append("")
+    for r in results.items:
         for w in r.outcome.warnings:
             lines += [f"**Warning, {r.name}**: {w}.", ""]
     not_conv = [r for r in results.items if not r.converged]

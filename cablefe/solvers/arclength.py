@@ -56,7 +56,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import MechanismError
-from .newton import NewtonSettings, PathOutcome, _relative, is_converged, newton_increment
+from .newton import (NewtonSettings, PathOutcome, _relative, indefinite_iterate, is_converged, negative_pivots,
+                     newton_increment, observe, stability_warnings)
 
 log = logging.getLogger(__name__)
 
@@ -91,6 +92,8 @@ class ArcLengthOutcome(PathOutcome):
     arc_lengths : arc length (norm of the unknowns' increment, m or rad) of
         each converged step; the landing step records the interpolated
         length it started from
+    negative_pivots, path : as in load control, one entry per converged
+        step: aligned with ``increments[1:]`` (the start λ = 0 is not a step)
     """
 
     states: tuple = ()
@@ -115,6 +118,8 @@ class _Try:
     ratio: float = math.inf
     failure: str = ""
     mechanism: MechanismError | None = None
+    tangent: object = None           # the tangent at the converged point
+    indefinite: bool = False         # some corrector tangent was not positive definite
 
 
 def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -> _Try:
@@ -148,6 +153,7 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
     lam_new = lam + dlam
     trial = problem.impose(problem.advance(state, du), lam, lam_new)
     # -- corrector on the cylinder ||du|| = dl
+    indefinite = False
     for it in range(settings.max_iterations + 1):
         r, ref, K = problem.evaluate(trial, lam_new, True)
         ratio = _relative(r, ref)
@@ -155,7 +161,7 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
         if not math.isfinite(ratio):
             return _Try(False, iterations=it, failure="non-finite")
         if is_converged(ratio * ref, ref, settings.tolerance, roundoff):
-            return _Try(True, trial, lam_new, du, it, ratio)
+            return _Try(True, trial, lam_new, du, it, ratio, tangent=K, indefinite=indefinite)
         if it == settings.max_iterations:
             break
         try:
@@ -165,6 +171,7 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
             return _Try(False, iterations=it, failure="mechanism", mechanism=exc)
         if not (np.all(np.isfinite(ur)) and np.all(np.isfinite(ut))):
             return _Try(False, iterations=it, failure="non-finite")
+        indefinite |= indefinite_iterate(problem, K, ur, r)
         # ||du + ur + x ut||² = dl²  ->  a x² + b x + c = 0
         base = du + ur
         a = float(ut @ ut)
@@ -188,7 +195,8 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
 
 def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_length: float | None = None,
                       max_steps: int = 200, target_load_factor: float = 1.0,
-                      progress=None, max_arc_length: float | None = None) -> ArcLengthOutcome:
+                      progress=None, max_arc_length: float | None = None,
+                      keep_states: bool = True) -> ArcLengthOutcome:
     """Trace the equilibrium path by arc length until λ reaches the target.
 
     Parameters
@@ -210,6 +218,10 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
     max_arc_length : float, optional
         Longest arc length the steps may grow to (same units as
         ``arc_length``); default ``MAX_GROWTH`` times the first.
+    keep_states : bool
+        Keep every converged state in ``states`` (memory of one state per
+        step); False keeps none (``state`` is the last one, ``path`` what
+        ``problem.observe`` recorded).
 
     Returns
     -------
@@ -228,7 +240,7 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
     lam = 0.0
     lam_sign = math.copysign(1.0, target_load_factor)
     history: list[float] = []
-    lams, states, lengths = [0.0], [state], []
+    lams, states, lengths = [0.0], [state] if keep_states else [], []
     total = 0
     last_ratio = 0.0
     if arc_length is None:
@@ -247,11 +259,28 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
     dl = min(arc_length, dl_max)
     direction = None
     cuts = 0
+    pivots: list = []
+    path: list = []
+    jumped: list = []
+
+    def finish(converged, status, msg):
+        warnings = stability_warnings(lams[1:], pivots, jumped, hasattr(problem, "inertia"),
+                                      "the arc-length steps were too long to resolve it")
+        for w in warnings:
+            log.warning(w)
+        return ArcLengthOutcome(state, converged, lam, total, last_ratio, status, msg, tuple(history),
+                                tuple(lams), tuple(warnings), tuple(pivots), tuple(path),
+                                states=tuple(states), arc_lengths=tuple(lengths))
 
     def stop(status, msg):
-        return ArcLengthOutcome(state, False, lam, total, last_ratio, status,
-                                msg + f"; last converged load factor {lam:.4f}", tuple(history),
-                                tuple(lams), states=tuple(states), arc_lengths=tuple(lengths))
+        return finish(False, status, msg + f"; last converged load factor {lam:.4f}")
+
+    def record(step_from, step, tangent, indefinite):
+        # the stability of the converged point and what to keep of it
+        if indefinite:
+            jumped.append((step_from, step[1]))
+        pivots.append(negative_pivots(problem, tangent))
+        path.append(observe(problem, *step))
 
     while len(lams) <= max_steps:
         t = _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history)
@@ -282,19 +311,24 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
             continue
         if landed is not None:
             lengths.append(landing_length)
+            lam_from = lam
             state, lam, last_ratio = landed.state, target_load_factor, landed.ratio
             problem.commit(state)
             lams.append(lam)
-            states.append(state)
+            if keep_states:
+                states.append(state)
+            record(lam_from, (state, lam), landed.tangent, landed.indefinite or t.indefinite)
             if progress is not None:
                 progress(lam, total)
-            return ArcLengthOutcome(state, True, lam, total, last_ratio, "converged", "converged",
-                                    tuple(history), tuple(lams), states=tuple(states), arc_lengths=tuple(lengths))
+            return finish(True, "converged", "converged")
         direction = (t.du, t.lam - lam)
+        lam_from = lam
         state, lam, last_ratio = t.state, t.lam, t.ratio
         problem.commit(state)
+        record(lam_from, (state, lam), t.tangent, t.indefinite)
         lams.append(lam)
-        states.append(state)
+        if keep_states:
+            states.append(state)
         lengths.append(dl)
         cuts = 0
         if progress is not None:

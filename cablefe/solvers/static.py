@@ -22,6 +22,7 @@ from ..assembly import Assembler, Evaluation, State, initial_state
 from ..errors import MechanismError
 from ..model import LoadVectors, Model
 from . import linear
+from .arclength import follow_arc_length
 from .newton import NewtonSettings, PathOutcome, follow_load_path
 
 log = logging.getLogger(__name__)
@@ -56,6 +57,11 @@ class StaticProblem:
         owner[model.dof[model.dof >= 0]] = np.argwhere(model.dof >= 0)
         self._pres_owner = owner[self._pres]
         self._roundoff = None
+        # the last factorisation and the tangent values it was made of: the
+        # stability count and the arc-length predictor reuse it
+        self._factorized = None
+        # nodes whose displacements every converged step records
+        self.track = np.array([model.node_index[n] for n in model.spec.analysis.track], dtype=np.int64)
 
     # -- the problem interface -------------------------------------------------
     def initial_state(self) -> State:
@@ -126,16 +132,63 @@ class StaticProblem:
     def commit(self, state: State) -> None:
         self.assembler.remember(self.assembler.element_responses(state, self.loads, 1.0, False))
 
+    def _factorize(self, K) -> linear.Factorization:
+        """The factorisation of ``K``, made once for the same tangent values."""
+        last = self._factorized
+        if last is not None and last[0].shape == K.data.shape and np.array_equal(last[1], K.indices) \
+                and np.array_equal(last[0], K.data) and np.array_equal(last[2], K.indptr):
+            return last[3]
+        self._factorized = None
+        fact = self.solver.factorize(K)
+        self._factorized = (K.data.copy(), K.indices.copy(), K.indptr.copy(), fact)
+        return fact
+
     def solve_linear(self, K, r):
         if K.shape[0] == 0:
             return np.zeros(0)
         try:
-            return self.solver.factorize(K).solve(r)
+            return self._factorize(K).solve(r)
         except linear.SingularMatrixError as exc:
             eqs = getattr(exc, "equations", None)
             if eqs is None or len(eqs) == 0:
                 eqs = linear.find_unrestrained(K)
             raise MechanismError([self.model.describe_dof(int(self.free[e])) for e in eqs]) from None
+
+    def inertia(self, K):
+        """Eigenvalue sign counts ``(positive, negative, zero)`` of the tangent.
+
+        Of its symmetric part for beam models (spin variables make the
+        tangent unsymmetric away from equilibrium; at an equilibrium the
+        symmetric part is the second variation of the energy).  Read from
+        the pivots of the factorisation already made of this ``K`` when
+        there is one, else one more factorisation (see
+        :meth:`cablefe.solvers.linear.LinearSolver.inertia`).  None when it
+        cannot be counted (a singular symmetric part: neutral stability).
+        """
+        if K.shape[0] == 0:
+            return (0, 0, 0)
+        try:
+            if self.model.has_rotations:
+                last = self._factorized
+                fact = last[3] if last is not None and np.array_equal(last[0], K.data) else None
+                return self.solver.inertia(K, fact)
+            return self.solver.inertia(K, self._factorize(K))
+        except linear.SingularMatrixError:
+            return None
+
+    def observe(self, state: State, lam: float):
+        """``(λ, node indices, (k, 3) displacements in m)`` of a converged step.
+
+        The tracked nodes (``[analysis] track``) and the node of largest
+        displacement at this step.
+        """
+        disp = state.positions - self.model.coordinates
+        nodes = self.track
+        if len(disp):
+            biggest = int(np.argmax(np.einsum("ij,ij->i", disp, disp)))
+            if biggest not in nodes:
+                nodes = np.append(nodes, biggest)
+        return float(lam), nodes, disp[nodes].copy()
 
 
 @dataclass(frozen=True)
@@ -177,7 +230,11 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
     settings = settings or NewtonSettings(a.increments, a.tolerance, a.max_iterations, a.max_cuts)
     loads = model.combined_loads(factors)
     problem = StaticProblem(model, loads, assembler=assembler, linear_solver=linear_solver or a.solver)
-    outcome = follow_load_path(problem, settings, progress)
+    if a.control == "arc-length":
+        # through limit points to λ = 1; only the final state is kept
+        outcome = follow_arc_length(problem, settings, progress=progress, keep_states=False)
+    else:
+        outcome = follow_load_path(problem, settings, progress)
     lam = outcome.load_factor
     ev = problem.assembler.evaluate(outcome.state, loads, lam, want_tangent=False)
     reactions = problem.out_of_balance(ev, lam)
