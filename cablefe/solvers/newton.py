@@ -264,7 +264,7 @@ def stability_warnings(load_factors, pivots, jumped=(), measured: bool = True,
     bad = [k for k, n in enumerate(neg) if n]
     if bad:
         k = bad[0]
-        more = (f" and at {len(bad) - 1} more converged step(s), up to load factor {lam[bad[-1]]:.4f}"
+        more = (f" and at {len(bad) - 1} more converged step(s), the last at load factor {lam[bad[-1]]:.4f}"
                 if len(bad) > 1 else "")
         out.append(f"unstable equilibrium: the tangent stiffness has {neg[k]} negative pivot(s) at "
                    f"load factor {lam[k]:.4f}{more}; the structure has buckled or passed a limit "
