@@ -241,8 +241,8 @@ def test_shallow_arch_snaps_through_against_the_shallow_arch_solution():
     # source: Fung & Kaplan 1952; Bažant & Cedolin 1991, ch. 2 (from memory).
     # The model differs from the shallow-arch solution by the mesh, O(h^2)
     # for cubic beam elements under lumped loads, and by the shallow-arch
-    # approximations, O((π e / L)^2) ~ 1e-4 of p_max.  Measured: 2.7e-3 and
-    # 7.1e-4.  The whole traced path (through the limit load p_max and the
+    # approximations, O((π e / L)^2) ~ 1e-4 of p_max.  Measured: about 2.6e-3 and
+    # 7.0e-4.  The whole traced path (through the limit load p_max and the
     # inverted branch) lies within 1e-3 p_max of the solution at 40
     # elements, and the error falls at order 2 (rate 2 -/+ 0.3: the 1e-4
     # floor is 0.14 of the finer error)

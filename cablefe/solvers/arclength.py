@@ -64,8 +64,7 @@ log = logging.getLogger(__name__)
 #: corrector iterations aimed at per step; the next arc length scales by
 #: sqrt(DESIRED_ITERATIONS / iterations), Crisfield's rule (from memory)
 DESIRED_ITERATIONS = 4
-#: the arc length never grows beyond this multiple of the first one, so a
-#: long easy stretch does not leap over a limit point it should resolve
+#: kept for callers that size the cap from the first arc length
 MAX_GROWTH = 4.0
 #: relative step in λ of the central difference for ∂r/∂λ: truncation
 #: ~h² |∂³r/∂λ³| and round-off ~eps |r| / h are both ~1e-10 of the load scale
@@ -83,7 +82,9 @@ class ArcLengthOutcome(PathOutcome):
     load_factor : the last converged load factor
     iterations : total corrector and landing iterations
     residual : relative residual of the last converged state
-    status : "converged" | "max-steps" | "max-cuts" | "mechanism" | "non-finite"
+    status : "converged" | "max-steps" | "max-cuts" | "mechanism" | "non-finite" | "no-load"
+        ("no-load": the load does not move the structure at λ = 0, so no
+        first arc length can be set)
     message : a sentence for the engineer
     history : relative residual of every iteration, in order
     increments : load factors of the converged points, in order (the path;
@@ -101,9 +102,19 @@ class ArcLengthOutcome(PathOutcome):
 
 
 def _load_derivative(problem, state, lam) -> np.ndarray:
-    """∂r/∂λ at fixed unknowns by a central difference (prescribed DOFs moved along)."""
+    """∂r/∂λ at fixed unknowns by a central difference (prescribed DOFs moved along).
+
+    At 0 <= λ < h the one-sided second-order difference
+    ``(-3 r(λ) + 4 r(λ + h) - r(λ + 2h)) / 2h`` is used instead: element
+    loads must not be evaluated at a negative load factor there (a
+    catenary's weight would change sign).
+    """
     h = DLAM * max(1.0, abs(lam))
     r_p, _, _ = problem.evaluate(problem.impose(state, lam, lam + h), lam + h, False)
+    if 0.0 <= lam < h:
+        r_0, _, _ = problem.evaluate(state, lam, False)
+        r_pp, _, _ = problem.evaluate(problem.impose(state, lam, lam + 2.0 * h), lam + 2.0 * h, False)
+        return (4.0 * r_p - 3.0 * r_0 - r_pp) / (2.0 * h)
     r_m, _, _ = problem.evaluate(problem.impose(state, lam, lam - h), lam - h, False)
     return (r_p - r_m) / (2.0 * h)
 
@@ -217,7 +228,13 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
     progress : callable(load_factor, iterations), optional
     max_arc_length : float, optional
         Longest arc length the steps may grow to (same units as
-        ``arc_length``); default ``MAX_GROWTH`` times the first.
+        ``arc_length``).  Default: no fixed cap; instead a step may change
+        the load factor by at most ``|target_load_factor| / increments``
+        (the next arc length is shortened in proportion to the last step's
+        change), so that a long easy stretch does not leap over a limit
+        point it should resolve, while a path much longer than the first
+        tangent response (a stiff start, a softening structure) is still
+        followed in a bounded number of steps.
     keep_states : bool
         Keep every converged state in ``states`` (memory of one state per
         step); False keeps none (``state`` is the last one, ``path`` what
@@ -252,10 +269,12 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
                                     (), tuple(lams), states=tuple(states), arc_lengths=())
         arc_length = abs(target_load_factor) / max(settings.increments, 1) * float(np.linalg.norm(ut))
         if not (math.isfinite(arc_length) and arc_length > 0.0):
-            return ArcLengthOutcome(state, False, lam, 0, 0.0, "non-finite",
+            # status "no-load": the caller may use load control instead
+            return ArcLengthOutcome(state, False, lam, 0, 0.0, "no-load" if arc_length == 0.0 else "non-finite",
                                     "the load does not move the structure; no arc length can be set",
                                     (), tuple(lams), states=tuple(states), arc_lengths=())
-    dl_max = MAX_GROWTH * arc_length if max_arc_length is None else max_arc_length
+    dl_max = math.inf if max_arc_length is None else max_arc_length
+    dlam_max = abs(target_load_factor) / max(settings.increments, 1) if max_arc_length is None else math.inf
     dl = min(arc_length, dl_max)
     direction = None
     cuts = 0
@@ -334,5 +353,10 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
         if progress is not None:
             progress(lam, total)
         log.info("arc length %.3g: load factor %.4f in %d iterations", dl, lam, t.iterations)
-        dl = min(dl_max, dl * min(2.0, math.sqrt(DESIRED_ITERATIONS / max(t.iterations, 1))))
+        grown = dl * min(2.0, math.sqrt(DESIRED_ITERATIONS / max(t.iterations, 1)))
+        moved = abs(direction[1])
+        if moved > 0.0:
+            # at the same rate of λ along the path, at most dlam_max per step
+            grown = min(grown, dl * dlam_max / moved)
+        dl = min(dl_max, grown)
     return stop("max-steps", f"target load factor {target_load_factor:.4f} not reached in {max_steps} steps")

@@ -233,6 +233,11 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
     if a.control == "arc-length":
         # through limit points to λ = 1; only the final state is kept
         outcome = follow_arc_length(problem, settings, progress=progress, keep_states=False)
+        if outcome.status == "no-load":
+            # nothing moves at the start (no load, a structure drawn in its
+            # equilibrium): no arc length can be set, and no limit point is near
+            log.info("%s: the load does not move the structure; load control instead of arc length", name)
+            outcome = follow_load_path(problem, settings, progress)
     else:
         outcome = follow_load_path(problem, settings, progress)
     lam = outcome.load_factor
