@@ -257,3 +257,13 @@ def test_shallow_arch_snaps_through_against_the_shallow_arch_solution():
     for a, n in zip(a40, neg40):
         if abs(abs(a) / a_lim - 1.0) > 0.05:
             assert (n > 0) == (abs(a) < a_lim), (a / a_lim, n)
+
+
+def test_arc_length_on_a_load_that_moves_nothing(tmp_path):
+    # no load: no first arc length can be set; the result is the unloaded
+    # equilibrium (the drawn geometry, stress-free: zero displacement), by
+    # load control
+    code, res = run_truss(tmp_path, 0.0, 'control = "arc-length"\ntrack = ["C"]')
+    assert code == 0 and res["converged"] and res["load_factor"] == 1.0
+    assert res["nodes"]["C"]["displacement"] == [0.0, 0.0, 0.0]
+    assert res["path"][-1]["displacements"]["C"] == [0.0, 0.0, 0.0]
