@@ -22,9 +22,11 @@ The problem may also carry ``roundoff``: the force (N) below which its
 residual cannot be computed reliably (round-off of stiff members), 0 if
 absent, and two optional methods:
 
-``inertia(K)``
+``inertia(K, factorized_only=False)``
     ``(positive, negative, zero)`` eigenvalue counts of the (symmetric part
-    of the) tangent ``K``, or None when unknown: the stability check.
+    of the) tangent ``K``, or None when unknown: the stability check.  With
+    ``factorized_only`` only when the factorisation just made for
+    ``solve_linear`` gives it without more work (the iterations' check).
 ``observe(state, lam)``
     what to record of each converged step (``PathOutcome.path``).
 
@@ -231,13 +233,15 @@ def negative_pivots(problem, K) -> int | None:
 def indefinite_iterate(problem, K, du, r) -> bool:
     """True when the tangent ``K`` just factorised for ``du = -K^-1 r`` is indefinite.
 
-    The pivot count when the problem gives one, otherwise the descent test:
+    The pivot count when the factorisation just made gives it, otherwise
+    (no ``inertia``, or an unsymmetric tangent) the descent test:
     ``du . r = -r K^-1 r`` is negative for a positive definite ``K``, so a
     positive value proves an indefinite tangent.
     """
-    n = negative_pivots(problem, K)
-    if n is not None:
-        return n > 0
+    count = getattr(problem, "inertia", None)
+    found = None if count is None else count(K, factorized_only=True)
+    if found is not None:
+        return found[1] > 0
     return float(du @ r) > INDEFINITE_SLOPE * float(np.linalg.norm(du) * np.linalg.norm(r))
 
 

@@ -154,7 +154,7 @@ class StaticProblem:
                 eqs = linear.find_unrestrained(K)
             raise MechanismError([self.model.describe_dof(int(self.free[e])) for e in eqs]) from None
 
-    def inertia(self, K):
+    def inertia(self, K, factorized_only: bool = False):
         """Eigenvalue sign counts ``(positive, negative, zero)`` of the tangent.
 
         Of its symmetric part for beam models (spin variables make the
@@ -163,14 +163,20 @@ class StaticProblem:
         the pivots of the factorisation already made of this ``K`` when
         there is one, else one more factorisation (see
         :meth:`cablefe.solvers.linear.LinearSolver.inertia`).  None when it
-        cannot be counted (a singular symmetric part: neutral stability).
+        cannot be counted (a singular symmetric part: neutral stability),
+        and with ``factorized_only`` when the count would need another
+        factorisation (an unsymmetric iterate's tangent: the driver then
+        uses its descent test).
         """
         if K.shape[0] == 0:
             return (0, 0, 0)
+        last = self._factorized
+        fact = last[3] if last is not None and last[0].shape == K.data.shape \
+            and np.array_equal(last[0], K.data) else None
         try:
+            if factorized_only:
+                return None if fact is None else fact.inertia()
             if self.model.has_rotations:
-                last = self._factorized
-                fact = last[3] if last is not None and np.array_equal(last[0], K.data) else None
                 return self.solver.inertia(K, fact)
             return self.solver.inertia(K, self._factorize(K))
         except linear.SingularMatrixError:
