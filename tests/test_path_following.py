@@ -93,7 +93,7 @@ def run_truss(tmp_path, P, extra, increments=40):
     return code, json.loads((out / "results.json").read_text())["results"]["apex"]
 
 
-def test_von_mises_truss_through_its_limit_point_from_the_case_file(tmp_path):
+def test_von_mises_truss_through_its_limit_point_from_the_case_file(tmp_path, verify):
     u_star, P_max = limit_point()
     P = 2.0 * P_max                       # λ = 1 exists only on the inverted branch
     code, res = run_truss(tmp_path, P, 'control = "arc-length"\ntrack = ["C"]')
@@ -107,7 +107,10 @@ def test_von_mises_truss_through_its_limit_point_from_the_case_file(tmp_path):
     # the larger of the applied load and the summed bar forces at C, so
     # ref <= |λ| P + 2 |N|
     # source: Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory)
-    assert_allclose(lam * P, truss_load(u), rtol=0, atol=TOL * np.max(np.abs(lam) * P + 2 * np.abs(bar_force(u))))
+    verify.check("Von Mises truss by arc length from a case file: apex load at every converged step "
+                 "P = 2EA(H0 - u)(1/L - 1/L0), through the limit point", "Bažant & Cedolin 1991, "
+                 "Stability of Structures, ch. 4 (from memory)", lam * P, truss_load(u), rtol=0,
+                 atol=TOL * np.max(np.abs(lam) * P + 2 * np.abs(bar_force(u))), unit="N")
 
     # the path shows the limit point: the largest λ before the snap is the
     # sample nearest u*; with P'(u*) = 0 it is below P_max by at most
@@ -119,6 +122,10 @@ def test_von_mises_truss_through_its_limit_point_from_the_case_file(tmp_path):
     d2 = np.gradient(np.gradient(truss_load(grid), grid), grid)
     # source: Bažant & Cedolin 1991, ch. 4 (limit load, from memory)
     assert 0.0 <= P_max - lam[k] * P + TOL * 2 * P_max <= 0.5 * np.abs(d2).max() * h**2 + TOL * 4 * P_max
+    verify.check("Von Mises truss: largest load of the traced path before the snap vs the limit load "
+                 "at cos(theta*) = cos(alpha)^(1/3) (bound: 1/2 max|P''| h^2 for the sample h from the limit)",
+                 "Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory)", lam[k] * P, P_max,
+                 rtol=0, atol=0.5 * np.abs(d2).max() * h**2 + TOL * 4 * P_max, unit="N")
     assert h < 0.05
 
     # stable up to the limit point, unstable on the descending branch, and
@@ -232,7 +239,7 @@ def arch_path(n):
     return lam * P, crown, np.array(o.negative_pivots), a_lim
 
 
-def test_shallow_arch_snaps_through_against_the_shallow_arch_solution():
+def test_shallow_arch_snaps_through_against_the_shallow_arch_solution(verify):
     p20, a20, neg20, a_lim = arch_path(20)
     p40, a40, neg40, _ = arch_path(40)
     p_max = arch_load(a_lim)
@@ -247,6 +254,11 @@ def test_shallow_arch_snaps_through_against_the_shallow_arch_solution():
     # elements, and the error falls at order 2 (rate 2 -/+ 0.3: the 1e-4
     # floor is 0.14 of the finer error)
     assert d40 < 1e-3
+    verify.check("shallow sinusoidal arch (e = 3 r, 40 beam elements) by arc length: load at every "
+                 "converged step vs the shallow-arch solution at the same crown rise, through the "
+                 "snap-through (tolerance 1e-3 p_max)", "Fung & Kaplan 1952, NACA TN 2840; Bažant & "
+                 "Cedolin 1991, Stability of Structures, ch. 2 (both from memory)",
+                 p40, arch_load(a40), rtol=0, atol=1e-3 * p_max, unit="N/m")
     assert 1.7 < math.log2(d20 / d40) < 2.3
     # the path goes over the limit point and comes back: λ falls after it
     assert np.max(p40) == p40[-1] and np.any(np.diff(p40) < 0)
