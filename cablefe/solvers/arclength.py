@@ -133,11 +133,13 @@ class _Try:
     indefinite: bool = False         # some corrector tangent was not positive definite
 
 
-def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -> _Try:
+def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history, w: float = 0.0) -> _Try:
     """One arc-length step of length ``dl`` from the converged ``(state, lam)``.
 
     ``direction`` is the previous converged increment (None on the first
-    step); ``lam_sign`` the sign of λ growth wanted on the first step.
+    step); ``lam_sign`` the sign of λ growth wanted on the first step;
+    ``w`` the weight of the load factor in the constraint
+    ``||Δu||² + w² Δλ² = dl²`` (m per unit λ; 0: the cylinder).
     """
     roundoff = float(getattr(problem, "roundoff", 0.0))
     # -- predictor along the tangent, or along the previous step (secant)
@@ -148,8 +150,9 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
     except MechanismError as exc:
         ut, singular = None, exc
     if ut is not None and np.all(np.isfinite(ut)) and float(np.linalg.norm(ut)) > 0.0:
-        sign = lam_sign if direction is None else (1.0 if float(direction[0] @ ut) >= 0.0 else -1.0)
-        dlam = sign * dl / float(np.linalg.norm(ut))
+        sign = lam_sign if direction is None else \
+            (1.0 if float(direction[0] @ ut) + w * w * direction[1] >= 0.0 else -1.0)
+        dlam = sign * dl / math.sqrt(float(ut @ ut) + w * w)
         du = dlam * ut
     else:
         if direction is None:
@@ -159,11 +162,11 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
         # singular tangent exactly at the converged point: the previous
         # increment (unknowns, λ) scaled to the new length is the predictor
         prev_du, prev_dlam = direction
-        scale = dl / float(np.linalg.norm(prev_du))
+        scale = dl / math.sqrt(float(prev_du @ prev_du) + (w * prev_dlam) ** 2)
         du, dlam = scale * prev_du, scale * prev_dlam
     lam_new = lam + dlam
     trial = problem.impose(problem.advance(state, du), lam, lam_new)
-    # -- corrector on the cylinder ||du|| = dl
+    # -- corrector on the cylinder ||du||² + w² Δλ² = dl²
     indefinite = False
     for it in range(settings.max_iterations + 1):
         r, ref, K = problem.evaluate(trial, lam_new, True)
@@ -183,11 +186,12 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
         if not (np.all(np.isfinite(ur)) and np.all(np.isfinite(ut))):
             return _Try(False, iterations=it, failure="non-finite")
         indefinite |= indefinite_iterate(problem, K, ur, r)
-        # ||du + ur + x ut||² = dl²  ->  a x² + b x + c = 0
+        # ||du + ur + x ut||² + w² (Δλ + x)² = dl²  ->  a x² + b x + c = 0
         base = du + ur
-        a = float(ut @ ut)
-        b = 2.0 * float(ut @ base)
-        c = float(base @ base) - dl * dl
+        D = lam_new - lam
+        a = float(ut @ ut) + w * w
+        b = 2.0 * (float(ut @ base) + w * w * D)
+        c = float(base @ base) + (w * D) ** 2 - dl * dl
         disc = b * b - 4.0 * a * c
         if a == 0.0 or disc < 0.0:
             return _Try(False, iterations=it, failure="complex-roots")
@@ -196,7 +200,7 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
         q = -0.5 * (b + math.copysign(sq, b))
         roots = (q / a, c / q) if q != 0.0 else (0.0, 0.0)
         # Crisfield's choice: the new increment closest in angle to the old one
-        x = max(roots, key=lambda x: float(du @ (base + x * ut)))
+        x = max(roots, key=lambda x: float(du @ (base + x * ut)) + w * w * D * (D + x))
         step = ur + x * ut
         du = du + step
         trial = problem.impose(problem.advance(trial, step), lam_new, lam_new + x)
@@ -207,7 +211,7 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
 def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_length: float | None = None,
                       max_steps: int = 200, target_load_factor: float = 1.0,
                       progress=None, max_arc_length: float | None = None,
-                      keep_states: bool = True) -> ArcLengthOutcome:
+                      keep_states: bool = True, load_weight: float = 0.0) -> ArcLengthOutcome:
     """Trace the equilibrium path by arc length until λ reaches the target.
 
     Parameters
@@ -239,6 +243,16 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
         Keep every converged state in ``states`` (memory of one state per
         step); False keeps none (``state`` is the last one, ``path`` what
         ``problem.observe`` recorded).
+    load_weight : float
+        ψ >= 0 (dimensionless): the constraint becomes
+        ``||Δu||² + (ψ s)² Δλ² = Δl²`` with ``s = ||K⁻¹ ∂r/∂λ||`` at λ = 0
+        (m per unit λ), Crisfield's spherical arc length (from memory).  0
+        (default) is the cylinder.  With ψ > 0 a stretch where the
+        displacements stand still while λ moves (a shaped structure loaded
+        by the very loads it was shaped for goes out and comes back, with
+        ``du/dλ = 0`` on the way) is passed; the cylinder cannot pass it.
+        The default first arc length grows by ``sqrt(1 + ψ²)``, so that the
+        first step still moves λ by about ``target / increments``.
 
     Returns
     -------
@@ -260,14 +274,22 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
     lams, states, lengths = [0.0], [state] if keep_states else [], []
     total = 0
     last_ratio = 0.0
-    if arc_length is None:
+    if not (math.isfinite(load_weight) and load_weight >= 0.0):
+        raise ValueError(f"load_weight must be a finite number >= 0, got {load_weight}")
+    w = 0.0
+    if arc_length is None or load_weight > 0.0:
         _, _, K = problem.evaluate(state, lam, True)
         try:
             ut = problem.solve_linear(K, _load_derivative(problem, state, lam))
         except MechanismError as exc:
             return ArcLengthOutcome(state, False, lam, 0, 0.0, "mechanism", str(exc) + "; at load factor 0",
                                     (), tuple(lams), states=tuple(states), arc_lengths=())
-        arc_length = abs(target_load_factor) / max(settings.increments, 1) * float(np.linalg.norm(ut))
+        w = load_weight * float(np.linalg.norm(ut))
+        if not math.isfinite(w):
+            w = 0.0
+    if arc_length is None:
+        arc_length = abs(target_load_factor) / max(settings.increments, 1) * float(np.linalg.norm(ut)) \
+            * math.sqrt(1.0 + load_weight ** 2)
         if not (math.isfinite(arc_length) and arc_length > 0.0):
             # status "no-load": the caller may use load control instead
             return ArcLengthOutcome(state, False, lam, 0, 0.0, "no-load" if arc_length == 0.0 else "non-finite",
@@ -302,7 +324,14 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
         path.append(observe(problem, *step))
 
     while len(lams) <= max_steps:
-        t = _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history)
+        try:
+            t = _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history, w)
+        except ValueError as exc:
+            # an iterate outside the elements' domain (a catenary's weight
+            # turned negative as λ < 0, a member length of zero): a failed
+            # step, cut like any other
+            log.info("arc-length step left the elements' domain: %s", exc)
+            t = _Try(False, failure="domain")
         total += t.iterations
         landed = None
         if t.converged and (lam - target_load_factor) * (t.lam - target_load_factor) <= 0.0 \

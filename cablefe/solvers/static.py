@@ -225,8 +225,13 @@ class StaticResult:
 def solve_combination(model: Model, name: str, factors: Mapping[str, float],
                       settings: NewtonSettings | None = None,
                       linear_solver: str | linear.LinearSolver | None = None,
-                      progress=None, assembler: Assembler | None = None) -> StaticResult:
+                      progress=None, assembler: Assembler | None = None,
+                      control: str | None = None) -> StaticResult:
     """Solve one combination of load cases nonlinearly from the model's geometry.
+
+    ``control`` ("load" or "arc-length") overrides ``[analysis] control``:
+    form-finding solves its trial shapes by load control whatever the
+    analysis asks for.
 
     ``assembler`` and a :class:`~cablefe.solvers.linear.LinearSolver` object
     as ``linear_solver`` may be passed to share their per-pattern work
@@ -236,9 +241,11 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
     settings = settings or NewtonSettings(a.increments, a.tolerance, a.max_iterations, a.max_cuts)
     loads = model.combined_loads(factors)
     problem = StaticProblem(model, loads, assembler=assembler, linear_solver=linear_solver or a.solver)
-    if a.control == "arc-length":
+    if (control or a.control) == "arc-length":
         # through limit points to λ = 1; only the final state is kept
-        outcome = follow_arc_length(problem, settings, progress=progress, keep_states=False)
+        # spherical (ψ = 1): a shaped structure's displacements may stand
+        # still while λ moves, which the cylinder cannot pass
+        outcome = follow_arc_length(problem, settings, progress=progress, keep_states=False, load_weight=1.0)
         if outcome.status == "no-load":
             # nothing moves at the start (no load, a structure drawn in its
             # equilibrium): no arc length can be set, and no limit point is near
