@@ -11,7 +11,7 @@ import math
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-from scipy.optimize import brentq, minimize_scalar
+from scipy.optimize import brentq
 
 import cablefe
 from cablefe.cli import main
