@@ -59,7 +59,8 @@ def _parser() -> argparse.ArgumentParser:
                    help="sparse linear solver backend (default: [analysis] solver or auto)")
 
     for name, text in (("solve", "nonlinear static analysis of every combination"),
-                       ("run", "everything the case asks for: shape (if [shape]), solve, further studies")):
+                       ("run", "everything the case asks for: shape (if [shape]), solve, further studies, "
+                               "design checks and sizing (if [design]), report.html")):
         s = sub.add_parser(name, help=text, description=text, epilog=EXAMPLES[name],
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         s.add_argument("case", help="case file (TOML)")
@@ -101,45 +102,17 @@ def cmd_check(args) -> int:
     runs = model.results_to_run()
     print(f"results to solve: {', '.join(n for n, _ in runs) or 'none'}")
     print(f"form-finding: {spec.shape.method if spec.shape else 'none'}")
+    if spec.design is not None:
+        d = spec.design
+        print(f"design checks: on {', '.join(d.results)}; {len(d.size)} size group(s)"
+              + (f"; PLACEHOLDER factors: {', '.join(d.placeholders)}" if d.placeholders else ""))
     return 0
 
 
-def _stability(outcome) -> str:
-    """The stability of the last converged state, in words."""
-    n = outcome.negative_pivots[-1] if outcome.negative_pivots else None
-    if n is None:
-        return "not determined"
-    if n == 0:
-        return "stable (no negative pivot of the tangent stiffness)"
-    return f"UNSTABLE ({n} negative pivot(s) of the tangent stiffness)"
-
-
-def _summary(results) -> None:
-    import numpy as np
-    m = results.model
-    u = m.spec.units
-    for res in results.items:
-        o = res.outcome
-        disp = np.linalg.norm(res.state.positions - m.coordinates, axis=1)
-        k = int(np.argmax(disp)) if len(disp) else 0
-        mf = results.member_forces(res.name)
-        j = int(np.argmax(mf.max_tension)) if len(mf.max_tension) else 0
-        flag = "converged" if o.converged else f"NOT CONVERGED ({o.message})"
-        print(f"  {res.name}: {flag}; load factor {o.load_factor:.3f}, {o.iterations} iterations")
-        print(f"    stability: {_stability(o)}")
-        for w in o.warnings:
-            print(f"    WARNING: {w}")
-        if len(disp):
-            print(f"    largest displacement {_fmt(disp[k] / u.length_scale, u.length)} at node {m.node_ids[k]}")
-        if len(mf.max_tension):
-            print(f"    largest tension {_fmt(mf.max_tension[j] / u.force_scale, u.force)} in member "
-                  f"{m.members[j].id}; slack members: {int(mf.slack.sum())}")
-        deck = results.deck_deflection(res.name)
-        if deck is not None:
-            L = u.length_scale
-            print(f"    largest deck deflection {abs(deck['vertical']) / L:.3f} {u.length} "
-                  f"({'down' if deck['vertical'] < 0 else 'up'}) at node {deck['node']}, "
-                  f"x = {deck['x'] / L:.1f} {u.length}")
+def _summary(results, design=None) -> None:
+    from .report.summary import summary_lines
+    for line in summary_lines(results, design):
+        print(line)
 
 
 def _shape(case_path, shaped_path, solver=None) -> bool:
@@ -212,14 +185,21 @@ def cmd_solve(args, shape_first=False) -> int:
 
     results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
     written = write_results(results, out)
-    if shape_first:  # `run` adds plots and a report
-        from .io.report import write_report
-        note = f"Shaped first: `{case}` with its cutting table beside it." if case != args.case else ""
-        written += write_report(results, out, case, CAUTION, note)
+    design = None
+    if shape_first:  # `run` adds design checks (and sizing), plots and a report
+        from .design.stage import design_stage
+        from .report.html import write_report
+        design = design_stage(results, out, CAUTION, args.case, args.solver)
+        if design is not None:
+            results, written = design.results, written + list(design.written)
+        written += write_report(results, out, case, CAUTION, design)
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
-    _summary(results)
+    _summary(results, design)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
+    if design is not None and not design.settled:
+        print(f"cablefe: sizing: {design.outcome.sizing['message']} (see design.json)", file=sys.stderr)
+        return 1
     if not results.all_converged:
         bad = [r.name for r in results.items if not r.converged]
         print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json)", file=sys.stderr)

@@ -60,7 +60,9 @@ Extensions to the interface page
     :data:`CONTROLS`: load control, or arc length through limit points) and
     ``track`` (node ids whose displacements each converged step records in
     the result's ``path``).
-``[design]``, ``[studies]``, ``[modes]``, ``[report]``
+``[design]``, ``[catalogues]``, fy on materials, Wy and Wz on sections
+    Design checks and sizing: read by :mod:`cablefe.io.case_design`.
+``[studies]``, ``[modes]``, ``[report]``
     Accepted as tables (or arrays of tables) and passed through unvalidated
     in ``CaseSpec.extra`` for the features that read them.
 
@@ -131,10 +133,10 @@ __all__ = [
 
 TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
                   "loads", "combinations", "shape", "analysis", "node_table", "member_table",
-                  "beam_reference")
-PASS_THROUGH_KEYS = ("design", "studies", "modes", "report")
-MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha")
-SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J")
+                  "beam_reference", "design", "catalogues")
+PASS_THROUGH_KEYS = ("studies", "modes", "report")
+MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha", "fy")
+SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J", "Wy", "Wz")
 MEMBER_KEYS = ("id", "type", "nodes", "section", "length0", "pretension", "tension_only",
                "divide", "up", "interior")
 NODE_TABLE_KEYS = ("ids", "x", "y", "z")
@@ -461,10 +463,13 @@ class _Reader:
                         or (isinstance(value, list) and all(isinstance(v, Mapping) for v in value))):
                     raise CaseError(name, f"expected a table or an array of tables, found {describe_value(value)}")
                 extra[name] = value
+        from .case_design import read_design   # [design], [[design.size]], [catalogues.*]
+        design, catalogues, data = read_design(data, self.q, materials, self.member_list, self.source)
         return CaseSpec(title=title, units=self.units, materials=materials, sections=sections,
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
-                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra)
+                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra,
+                        design=design, catalogues=catalogues)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:
@@ -484,7 +489,8 @@ class _Reader:
             else:
                 unit_weight = self.optional(entry, "unit_weight", "unit_weight", key, "nonnegative", 0.0)
             alpha = self.optional(entry, "alpha", "thermal_expansion", key, default=0.0)
-            out[name] = Material(name=name, E=E, G=G, unit_weight=unit_weight, alpha=alpha)
+            fy = self.optional(entry, "fy", "stress", key, "positive")
+            out[name] = Material(name=name, E=E, G=G, unit_weight=unit_weight, alpha=alpha, fy=fy)
         return out
 
     def sections(self, value, materials) -> dict[str, Section]:
@@ -508,6 +514,8 @@ class _Reader:
                 Iy=self.optional(entry, "Iy", "second_moment", key, "positive"),
                 Iz=self.optional(entry, "Iz", "second_moment", key, "positive"),
                 J=self.optional(entry, "J", "second_moment", key, "positive"),
+                Wy=self.optional(entry, "Wy", "section_modulus", key, "positive"),
+                Wz=self.optional(entry, "Wz", "section_modulus", key, "positive"),
             )
         return out
 
