@@ -106,6 +106,8 @@ def cmd_check(args) -> int:
         d = spec.design
         print(f"design checks: on {', '.join(d.results)}; {len(d.size)} size group(s)"
               + (f"; PLACEHOLDER factors: {', '.join(d.placeholders)}" if d.placeholders else ""))
+    for w in model.warnings:
+        print(f"WARNING: {w}")
     return 0
 
 
@@ -207,7 +209,34 @@ def cmd_solve(args, shape_first=False) -> int:
     return 0
 
 
+def _check_options(args) -> None:
+    """Options that name things the case or the machine may not have, checked before any work.
+
+    Raises CaseError (key ``--solver`` or ``--only``) so that nothing is
+    written for a mistyped name: ``run`` would otherwise shape (and write
+    the shaped case) before finding it.
+    """
+    from .errors import CaseError
+    from .io.case import solver_unavailable
+    solver = getattr(args, "solver", None)
+    if solver:
+        problem = solver_unavailable(solver)
+        if problem:
+            raise CaseError("--solver", problem, str(args.case))
+    only = getattr(args, "only", None)
+    if only:
+        from . import read_case
+        spec = read_case(args.case)
+        known = [c.name for c in spec.combinations] or list(spec.load_cases)
+        unknown = [name for name in dict.fromkeys(only) if name not in known]
+        if unknown:
+            what = "combination" if spec.combinations else "load case (the case has no combinations)"
+            raise CaseError("--only", f"no {what} named {', '.join(map(repr, unknown))} "
+                            f"(known: {', '.join(known) or 'none'})", str(args.case))
+
+
 def main(argv=None) -> int:
+    """Run the command line; returns the exit status (0, 1 or 2, 130 on Ctrl-C)."""
     from .errors import CaseError
     try:
         args = _parser().parse_args(argv)
@@ -216,7 +245,10 @@ def main(argv=None) -> int:
         return 2
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(levelname)s %(name)s: %(message)s")
+    case = getattr(args, "case", None)
     try:
+        if args.command in ("solve", "run", "shape"):
+            _check_options(args)
         if args.command == "check":
             return cmd_check(args)
         if args.command == "solve":
@@ -230,13 +262,18 @@ def main(argv=None) -> int:
             try:
                 return cmd_new(args)
             except ValueError as exc:  # a bad parameter: the message names the option
-                print(f"cablefe new {args.family}: {exc}", file=sys.stderr)
+                print(" ".join(f"cablefe new {args.family}: {exc}".split("\n")), file=sys.stderr)
                 return 2
     except CaseError as exc:
+        if exc.file is None and case is not None:
+            exc = exc.with_file(str(case))
         print(f"cablefe: {exc}", file=sys.stderr)
         return 2
     except FileNotFoundError as exc:
         print(f"cablefe: {exc.filename}: file not found", file=sys.stderr)
+        return 2
+    except MemoryError:  # the size limit of the reader keeps ordinary cases well below this
+        print(f"cablefe: {case}: not enough memory for this model on this machine", file=sys.stderr)
         return 2
     except BrokenPipeError:  # output piped into a pager or head that closed early
         sys.stderr.close()

@@ -24,7 +24,6 @@ factor is a placeholder default unless the case sets it.
 """
 from __future__ import annotations
 
-import fnmatch
 import math
 from dataclasses import dataclass, field
 from typing import Mapping
@@ -32,6 +31,7 @@ from typing import Mapping
 import numpy as np
 
 from ..model import Model, report_deck_nodes
+from ..patterns import match_ids, match_indices
 from ..spec import DesignSpec
 
 #: vertical reactions smaller than this share of the largest reaction of a
@@ -186,9 +186,8 @@ def lane_nodes(model: Model, study: Mapping) -> np.ndarray | None:
         if p in model.node_index:
             idx.append(model.node_index[p])
             continue
-        for mem in model.members:
-            if mem.id == p or fnmatch.fnmatchcase(mem.id, p):
-                idx.extend(model.node_index[n] for n in mem.node_ids)
+        for k in match_indices(p, [mem.id for mem in model.members]):
+            idx.extend(model.node_index[n] for n in model.members[k].node_ids)
     return np.unique(np.asarray(idx, dtype=np.int64)) if idx else None
 
 
@@ -254,8 +253,7 @@ def check_design(design: DesignSpec, model: Model, data: list[ResultData], perma
     """
     spec = model.spec
     ids = [m.id for m in model.members]
-    checked = [k for k, mid in enumerate(ids)
-               if any(mid == p or fnmatch.fnmatchcase(mid, p) for p in design.members)]
+    checked = match_indices(design.members, ids)
     props = _member_props(model)
     checks: list[Check] = []
     unchecked: dict[str, str] = {}
@@ -363,9 +361,7 @@ def check_design(design: DesignSpec, model: Model, data: list[ResultData], perma
 
 def select_targets(design: DesignSpec, names, study_names) -> tuple[list[str], list[str]]:
     """The results and the study envelopes matched by ``design.results``."""
-    def hit(n):
-        return any(n == p or fnmatch.fnmatchcase(n, p) for p in design.results)
-    return [n for n in names if hit(n)], [n for n in study_names if hit(n)]
+    return match_ids(design.results, list(names)), match_ids(design.results, list(study_names))
 
 
 def run_checks(design: DesignSpec, results, envelopes: Mapping[str, Mapping] | None = None) -> DesignOutcome:

@@ -42,10 +42,9 @@ class SizingRun:
 
 def group_members(spec: CaseSpec) -> list[list[str]]:
     """Member ids of each size group, in case order."""
-    import fnmatch
-    ids = [m.id for m in spec.members]
-    return [[i for i in ids if any(i == p or fnmatch.fnmatchcase(i, p) for p in g.members)]
-            for g in spec.design.size]
+    from ..patterns import PatternIndex
+    index = PatternIndex([m.id for m in spec.members])
+    return [[index.ids[k] for k in index.indices(g.members)] for g in spec.design.size]
 
 
 def apply_sections(spec: CaseSpec, choice: list[int]) -> CaseSpec:

@@ -21,12 +21,12 @@ from __future__ import annotations
 
 import copy
 import csv
-import fnmatch
 import re
 from pathlib import Path
 from typing import Any, Mapping, Sequence
 
 from ..errors import CaseError
+from ..patterns import match_ids
 from ..spec import Catalogue, CatalogueSection, DesignSpec, DESIGN_DEFAULTS, Material, Member, SizeGroup
 from .units import Quantities, describe_value
 
@@ -63,7 +63,7 @@ def _patterns(value, key) -> tuple[str, ...]:
 
 
 def _matches(pattern: str, names: Sequence[str]) -> list[str]:
-    return [n for n in names if n == pattern or fnmatch.fnmatchcase(n, pattern)]
+    return match_ids(pattern, list(names))
 
 
 def _factor(design, name, key, q: Quantities, minimum_exclusive=True) -> float:

@@ -163,6 +163,14 @@ def _result_section(results, name, entry, units, figure) -> str:
                  + ".</p>")
     for w in entry.get("warnings", []):
         parts.append(f'<p class="warn">Warning: {_e(w)}</p>')
+    eq = entry.get("equilibrium")
+    if eq:   # already in the file's force unit
+        at = eq.get("unbalanced_at")
+        parts.append(f"<p>Equilibrium check: largest unbalanced force {eq['largest_unbalanced_force']:.3g} "
+                     f"{_e(units.force)}" + (f" at {_e(at[0])} {_e(at[1])}" if at else "")
+                     + "; total load [" + ", ".join(f"{v:.4g}" for v in eq["total_load"])
+                     + f"] {_e(units.force)}; reactions plus loads ["
+                     + ", ".join(f"{v:.3g}" for v in eq["reactions_plus_loads"]) + f"] {_e(units.force)}.</p>")
     nodes = entry.get("nodes", {})
     # largest displacement of the deck or the structure (not of a guy's sag node)
     idx, what = structure_nodes(m)

@@ -101,8 +101,8 @@ def plot_result(results, name: str, path) -> Path:
     pos_si = res.state.positions
     # the sway of the structure, not of a guy's sag nodes, picks a mast's plane
     axes, kind, view = choose_view(m, (pos_si - m.coordinates)[structure_nodes(m)[0]])
-    base = m.coordinates / L
-    pos = pos_si / L
+    base = m.site_coordinates / L   # drawn in site coordinates; movements from the local ones
+    pos = base + (pos_si - m.coordinates) / L
     scale, biggest = magnification(m, pos_si)
     drawn = base + scale * (pos - base)
     segs0, segs1, tens = [], [], []

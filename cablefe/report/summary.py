@@ -39,7 +39,15 @@ def summary_lines(results, design=None) -> list[str]:
         flag = "converged" if o.converged else f"NOT CONVERGED ({o.message})"
         lines.append(f"  {res.name}: {flag}; load factor {o.load_factor:.3f}, {o.iterations} iterations")
         lines.append(f"    stability: {stability_words(o)}")
-        lines += [f"    WARNING: {w}" for w in o.warnings]
+        lines += [f"    WARNING: {w}" for w in res.warnings]
+        eq = res.equilibrium
+        if eq:   # every result's equilibrium check: reactions against the applied loads
+            at = eq.get("unbalanced_at")
+            lines.append(f"    equilibrium: largest unbalanced force {_f(eq['largest_unbalanced_force'] / F, u.force)}"
+                         + (f" at {at[0]} {at[1]}" if at else "")
+                         + "; reactions + loads = [" + ", ".join(f"{v / F:.3g}" for v in eq["reactions_plus_loads"])
+                         + f"] {u.force}; total load [" + ", ".join(f"{v / F:.4g}" for v in eq["total_load"])
+                         + f"] {u.force}")
         disp = results.displacements(res.name)
         if len(nodes):
             d = np.linalg.norm(disp[nodes], axis=1)

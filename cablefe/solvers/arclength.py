@@ -82,7 +82,7 @@ class ArcLengthOutcome(PathOutcome):
     load_factor : the last converged load factor
     iterations : total corrector and landing iterations
     residual : relative residual of the last converged state
-    status : "converged" | "max-steps" | "max-cuts" | "mechanism" | "non-finite" | "no-load"
+    status : "converged" | "max-steps" | "max-cuts" | "mechanism" | "non-finite" | "budget" | "no-load"
         ("no-load": the load does not move the structure at λ = 0, so no
         first arc length can be set)
     message : a sentence for the engineer
@@ -348,6 +348,13 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
         if not t.converged:
             cuts += 1
             log.info("arc-length step of %.3g from load factor %.4f failed (%s); cutting", dl, lam, t.failure)
+            budget = getattr(settings, "max_total_iterations", math.inf)
+            if total >= budget:
+                # bounded work, as in load control; converged steps are
+                # bounded by max_steps
+                return stop("budget", f"no convergence beyond load factor {lam:.4f}: the work budget of "
+                                      f"{budget} iterations per result is spent ([analysis] "
+                                      f"max_total_iterations sets it)")
             if cuts > settings.max_cuts:
                 if t.failure == "mechanism":
                     return stop("mechanism", str(t.mechanism))
