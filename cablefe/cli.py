@@ -72,6 +72,14 @@ def _parser() -> argparse.ArgumentParser:
                        help="solve only this combination (repeatable)")
         s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
                        help="sparse linear solver backend (default: [analysis] solver or auto)")
+    text = "natural modes about a converged result (and the pedestrian check when configured): [modes]"
+    s = sub.add_parser("modes", help=text, description=text, epilog="examples:\n  cablefe modes "
+                       "cases/generated-suspension.toml -o out/modes",
+                       formatter_class=argparse.RawDescriptionHelpFormatter)
+    s.add_argument("case", help="case file (TOML) with a [modes] table")
+    s.add_argument("-o", "--output", required=True, help="output folder")
+    s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
+                   help="sparse linear solver backend (default: [analysis] solver or auto)")
     from .generate.command import add_parser as add_new_parser
     add_new_parser(sub, _Parser)
     return p
@@ -270,8 +278,13 @@ def cmd_solve(args, shape_first=False) -> int:
             extra = {"incomplete": {"reason": f"{what} while solving {missing[0]}"
                                     + (f": {failure}" if failure else ""), "not_solved": missing}}
         design = None
+        modes_status = 0
         try:
             write_result_files(results, folder.staging, extra=extra)
+            if shape_first and model.spec.modes is not None and not missing:
+                # after solve, before design and report; written with the set
+                staged_args = argparse.Namespace(**{**vars(args), "output": str(folder.staging)})
+                modes_status = cmd_modes(staged_args, model, results, shown_folder=out)
             if shape_first:  # `run` adds design checks (and sizing), plots and a report
                 from .report.html import write_report
                 if not missing:   # no design verdict on part of the results
@@ -305,6 +318,35 @@ def cmd_solve(args, shape_first=False) -> int:
         print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json and in the meshes' field "
               "data; what converged is written)", file=sys.stderr)
         return 1
+    if modes_status:
+        return modes_status
+    return 0
+
+
+def cmd_modes(args, model=None, results=None, shown_folder=None) -> int:
+    """Modes alone (``cablefe modes``) or as a step of ``run`` (model and results given).
+
+    ``shown_folder``: the folder named in the printed paths (``run`` writes
+    into a staging folder that is moved into place at the end).
+    """
+    from . import load_model
+    from .io.modes_io import frequency_table
+    from .vibration import ModesError, NotConverged, run_modes
+    alone = model is None
+    model = model or load_model(args.case)
+    if alone and model.spec.modes is None:
+        from .errors import CaseError
+        raise CaseError("modes", "the case has no [modes] table").with_file(str(args.case))
+    try:
+        found, written = run_modes(model, Path(args.output), results, args.solver)
+    except ModesError as exc:
+        print(f"cablefe: {args.case}: modes: {exc}", file=sys.stderr)
+        return 1 if isinstance(exc, NotConverged) else 2
+    print("\n".join(frequency_table(found)))
+    shown = written if shown_folder is None else [Path(shown_folder) / Path(p).name for p in written]
+    print(f"wrote {', '.join(str(p) for p in shown)}")
+    if alone:
+        print("caution: " + CAUTION)
     return 0
 
 
@@ -354,6 +396,8 @@ def main(argv=None) -> int:
             return cmd_solve(args)
         if args.command == "shape":
             return cmd_shape(args)
+        if args.command == "modes":
+            return cmd_modes(args)
         if args.command == "run":
             return cmd_solve(args, shape_first=True)
         if args.command == "new":
