@@ -68,9 +68,30 @@ def _parser() -> argparse.ArgumentParser:
                        help="solve only this combination (repeatable)")
         s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
                        help="sparse linear solver backend (default: [analysis] solver or auto)")
+        if name == "run":
+            _study_options(s)
+    s = sub.add_parser("study", help="run the case's [[studies]] alone (solving their base results)",
+                       description="live-load studies: influence lines, worst patches, sweeps, tolerances")
+    s.add_argument("case", help="case file (TOML)")
+    s.add_argument("-o", "--output", required=True, help="output folder")
+    s.add_argument("--only", action="append", metavar="NAME", help="run only this study (repeatable)")
+    s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
+                   help="sparse linear solver backend (default: [analysis] solver or auto)")
+    _study_options(s)
     from .generate.command import add_parser as add_new_parser
     add_new_parser(sub, _Parser)
     return p
+
+
+def _positive(text: str) -> int:
+    if not text.isdigit() or int(text) < 1:
+        raise argparse.ArgumentTypeError(f"expected a positive integer, found {text!r}")
+    return int(text)
+
+
+def _study_options(s) -> None:
+    s.add_argument("--workers", type=_positive, metavar="N", help="local processes for the studies (default: all cores)")
+    s.add_argument("--scheduler", metavar="ADDRESS", help="run the studies on a Dask cluster (tcp://host:8786)")
 
 
 def _fmt(x, unit, digits=4):
@@ -207,11 +228,45 @@ def cmd_solve(args, shape_first=False) -> int:
         written += write_report(results, out, case, CAUTION, note)
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
     _summary(results)
+    if shape_first and model.spec.studies:   # `run`: the studies after the solve
+        from .studies.command import add_to_results, run_studies
+        done = run_studies(results, out, workers=args.workers, scheduler=args.scheduler, solver=args.solver,
+                           progress_stream=sys.stderr if live else None)
+        written += [add_to_results(results, out, done)] + done.written
+        _study_summary(done)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
+    if shape_first and model.spec.studies and done.failed:
+        print(f"cablefe: failed solves in studies: {', '.join(done.failed)} (marked in envelope.json)",
+              file=sys.stderr)
+        return 1
     if not results.all_converged:
         bad = [r.name for r in results.items if not r.converged]
         print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json)", file=sys.stderr)
+        return 1
+    return 0
+
+
+def _study_summary(done) -> None:
+    for name, s in done.summary.items():
+        line = f"  study {name} ({s['kind']}): {s['solves']} solve(s)" + (f", {s['failed']} FAILED" if s["failed"] else "")
+        if "largest_tension" in s:
+            line += f"; largest tension {s['largest_tension']['value']:.4g} in {s['largest_tension']['member']}"
+        print(line)
+
+
+def cmd_study(args) -> int:
+    from .studies.command import study_case
+    t0 = time.perf_counter()
+    _, done, written = study_case(args.case, args.output, args.only, args.workers, args.scheduler, args.solver,
+                                  sys.stderr if sys.stderr.isatty() else None)
+    print(f"ran {len(done.summary)} study(ies) in {time.perf_counter() - t0:.2f} s")
+    _study_summary(done)
+    print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
+    print("caution: " + CAUTION)
+    if done.failed:
+        print(f"cablefe: failed solves in studies: {', '.join(done.failed)} (marked in envelope.json)",
+              file=sys.stderr)
         return 1
     return 0
 
@@ -234,6 +289,8 @@ def main(argv=None) -> int:
             return cmd_shape(args)
         if args.command == "run":
             return cmd_solve(args, shape_first=True)
+        if args.command == "study":
+            return cmd_study(args)
         if args.command == "new":
             from .generate.command import run as cmd_new
             try:

@@ -128,8 +128,8 @@ __all__ = [
 
 TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
                   "loads", "combinations", "shape", "analysis", "node_table", "member_table",
-                  "beam_reference")
-PASS_THROUGH_KEYS = ("design", "studies", "modes", "report")
+                  "beam_reference", "studies")
+PASS_THROUGH_KEYS = ("design", "modes", "report")
 MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha")
 SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J")
 MEMBER_KEYS = ("id", "type", "nodes", "section", "length0", "pretension", "tension_only",
@@ -449,6 +449,11 @@ class _Reader:
         shape = self.shape(data["shape"], cases) if "shape" in data else None
         analysis = self.analysis(data.get("analysis", {}))
         beam_reference = self.beam_reference(data.get("beam_reference", {}))
+        studies = ()
+        if "studies" in data:
+            from .case_studies import read_studies
+            studies = read_studies(self, data["studies"],
+                                   [c.name for c in combinations] or list(dict.fromkeys(l.case for l in loads)))
         extra = {}
         for name in PASS_THROUGH_KEYS:
             if name in data:
@@ -460,7 +465,8 @@ class _Reader:
         return CaseSpec(title=title, units=self.units, materials=materials, sections=sections,
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
-                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra)
+                        beam_reference=beam_reference, source=self.source, raw=data, extra=extra,
+                        studies=studies)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:
