@@ -105,9 +105,10 @@ class Runner:
             shared = client.scatter(ctx, broadcast=True)
             futures = client.map(run_task, [shared] * len(tasks), tasks, pure=False)
             index = {f.key: k for k, f in enumerate(futures)}
-            for done, fut in enumerate(dask_completed(futures), start=1):
-                out[index[fut.key]] = fut.result()
-                self._tick(done, len(tasks))
+            with client.as_current():
+                for done, fut in enumerate(dask_completed(futures), start=1):
+                    out[index[fut.key]] = fut.result()
+                    self._tick(done, len(tasks))
             client.run(forget_session, ctx.token)
         return out
 
