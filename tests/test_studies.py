@@ -382,3 +382,42 @@ def test_study_command_writes_every_output(tmp_path):
     summary = json.loads((out / "results.json").read_text())["studies"]
     assert set(summary) == {"crowd", "walk"}
     assert main(["study", str(case), "-o", str(out), "--only", "nothing"]) == 2
+
+
+def test_influence_lines_without_beams_agree_by_either_side_and_with_central_differences(monkeypatch):
+    """A cable-and-bar model (symmetric tangent) with more responses than lane
+    points: the lines formed per lane point (Maxwell-Betti reciprocity) equal
+    the adjoint ones, and both the central differences of nonlinear solves
+    (Burden & Faires, Numerical Analysis, sec. 4.1)."""
+    from pathlib import Path
+    import cablefe.studies.influence as influence
+    src = (Path(__file__).parent.parent / "cases" / "hanger_deck.toml").read_text()
+    block = _study_block(name='"i"', kind='"influence"', path='"D*"', watch='["D*", "H*", "C*"]')
+    text = src.replace("[analysis]", block + "\n[analysis]")
+    results = _solved(text)
+    study = results.model.spec.studies[0]
+    ctx = make_context(results, study)
+    session = session_for(ctx)
+    one = influence_lines(session, session.lane, study.load)
+    assert len(one.names) > len(session.lane.s)
+    monkeypatch.setattr(influence, "RECIPROCITY", False)
+    other = influence_lines(session, session.lane, study.load)
+    # the two differ by round-off of two solve orders: compare each kind of
+    # response against the largest influence of that kind
+    for kind in ("displacement", "tension", "reaction"):
+        rows = [k for k, x in enumerate(one.kind) if x == kind]
+        scale = np.abs(one.values[rows]).max()
+        assert_allclose(one.values[rows], other.values[rows], rtol=0, atol=1e-9 * scale)
+    names = {n: k for k, n in enumerate(one.names)}
+    h = 500.0
+    node_pos = {results.model.node_ids[n]: k for k, n in enumerate(ctx.watch.nodes)}
+    mem_pos = {results.model.members[k].id: j for j, k in enumerate(ctx.watch.members)}
+    for j in (3, 6):
+        s = float(session.lane.s[j])
+        plus = session.solve(0, point_load(session.model, session.lane, s, (0, 0, -h)))
+        minus = session.solve(1, point_load(session.model, session.lane, s, (0, 0, h)))
+        fd = (plus.displacements[node_pos["D6"], 2] - minus.displacements[node_pos["D6"], 2]) / (2 * h)
+        assert_allclose(one.values[names["D6 uz"], j], fd, rtol=1e-3)
+        for member in ("H3", "H6"):
+            fd = (plus.max_tension[mem_pos[member]] - minus.max_tension[mem_pos[member]]) / (2 * h)
+            assert_allclose(one.values[names[f"{member} tension"], j], fd, rtol=1e-3, atol=1e-6)

@@ -36,7 +36,13 @@ from ..spec import CaseSpec
 
 #: load increments of a study solve (cut when needed): the additions are
 #: small next to the permanent state they start from
-STUDY_INCREMENTS = 2
+STUDY_INCREMENTS = 1
+#: the base tangent's factorization is reused for the Newton steps
+#: (modified Newton: one back-substitution instead of a factorization per
+#: step) while each step reduces the residual norm at least this much ...
+CONTRACTION = 0.5
+#: ... and for at most this many steps; then full Newton takes over
+MODIFIED_STEPS = 8
 
 
 class FromBaseProblem(StaticProblem):
@@ -71,6 +77,11 @@ class FromBaseProblem(StaticProblem):
         self.assembler.remember(session.base_responses)
         ev = self.assembler.evaluate(self._start, self.base, 1.0, want_tangent=False)
         self._r0 = ev.internal - self.base.nodal
+        # modified Newton with the base factorization, while it converges fast
+        self._base_factor = session.base_factor if model is None else None
+        self._previous = None
+        self._steps = 0
+        self._at = None
 
     def _loads_at(self, lam: float) -> LoadVectors:
         return self.base + self.added.scaled(lam)
@@ -82,12 +93,28 @@ class FromBaseProblem(StaticProblem):
         return ev.internal - self.base.nodal - lam * self.added.nodal - (1.0 - lam) * self._r0
 
     def evaluate(self, state: State, lam: float, want_tangent: bool = True):
+        if want_tangent and self._base_factor is not None:
+            want_tangent = False        # built in solve_linear only if needed
+            self._at = (state, lam)
         ev = self.assembler.evaluate(state, self._loads_at(lam), 1.0, want_tangent)
         r = self.out_of_balance(ev, lam)[self.free]
         applied = self.base.nodal + lam * self.added.nodal + (1.0 - lam) * self._r0
         ref = max(float(np.linalg.norm(applied[self.free])), float(np.linalg.norm(ev.magnitude[self.free])),
                   np.finfo(float).tiny)
         return r, ref, ev.tangent
+
+    def solve_linear(self, K, r):
+        if self._base_factor is not None:
+            size = float(np.linalg.norm(r))
+            if self._steps < MODIFIED_STEPS and (self._previous is None or size < CONTRACTION * self._previous):
+                self._previous = size
+                self._steps += 1
+                return self._base_factor.solve(r)
+            self._base_factor = None     # slow: full Newton from here on
+        if K is None:
+            state, lam = self._at
+            K = self.assembler.evaluate(state, self._loads_at(lam), 1.0, True).tangent
+        return super().solve_linear(K, r)
 
 
 def member_extremes(model: Model, responses, beam_loads: np.ndarray | None):
@@ -178,11 +205,16 @@ class Session:
         self.lock = threading.Lock()
         # one factorization of the base tangent before any task: afterwards
         # every task sees the solver in the same state (ordering found),
-        # whichever task a worker runs first
-        K = self.assembler.evaluate(self.base_state, self.base_loads, 1.0, True).tangent
-        if K.shape[0]:
+        # whichever task a worker runs first.  The factorization itself is
+        # kept (by a solver of its own, whose handle no later
+        # factorization reuses) for modified Newton steps and influence lines.
+        self.base_tangent = self.assembler.evaluate(self.base_state, self.base_loads, 1.0, True).tangent
+        self.base_factor = None
+        if self.base_tangent.shape[0]:
             try:
-                self.solver.factorize(K)
+                self.solver.factorize(self.base_tangent)
+                keeper = linear.make_linear_solver(ctx.solver, symmetric=not self.model.has_rotations)
+                self.base_factor = keeper.factorize(self.base_tangent)
             except linear.SingularMatrixError:
                 pass
 
