@@ -248,6 +248,8 @@ def cmd_solve(args, shape_first=False) -> int:
 
 
 def _study_summary(done) -> None:
+    for name, why in done.skipped:
+        print(f"  study {name}: skipped, {why}")
     for name, s in done.summary.items():
         line = f"  study {name} ({s['kind']}): {s['solves']} solve(s)" + (f", {s['failed']} FAILED" if s["failed"] else "")
         if "largest_tension" in s:
@@ -273,6 +275,7 @@ def cmd_study(args) -> int:
 
 def main(argv=None) -> int:
     from .errors import CaseError
+    from .studies.runner import RunnerError
     try:
         args = _parser().parse_args(argv)
     except UsageError as exc:
@@ -299,6 +302,9 @@ def main(argv=None) -> int:
                 print(f"cablefe new {args.family}: {exc}", file=sys.stderr)
                 return 2
     except CaseError as exc:
+        print(f"cablefe: {exc}", file=sys.stderr)
+        return 2
+    except RunnerError as exc:
         print(f"cablefe: {exc}", file=sys.stderr)
         return 2
     except FileNotFoundError as exc:

@@ -421,3 +421,41 @@ def test_influence_lines_without_beams_agree_by_either_side_and_with_central_dif
         for member in ("H3", "H6"):
             fd = (plus.max_tension[mem_pos[member]] - minus.max_tension[mem_pos[member]]) / (2 * h)
             assert_allclose(one.values[names[f"{member} tension"], j], fd, rtol=1e-3, atol=1e-6)
+
+
+def test_a_failed_solve_is_marked_not_dropped(tmp_path, monkeypatch):
+    from dataclasses import replace
+    from cablefe.cli import main
+    from cablefe.studies.base import Session
+    real = Session.solve
+
+    def failing(self, index, added, model=None):
+        r = real(self, index, added, model)
+        return replace(r, converged=False, message="made to fail") if index == 1 else r
+
+    monkeypatch.setattr(Session, "solve", failing)
+    case = tmp_path / "deck.toml"
+    case.write_text(deck_case(_study_block(name='"walk"', kind='"sweep"', path=LANE, load="[0, 0, -20]",
+                                           steps=3, watch='["D3", "H3"]')))
+    out = tmp_path / "out"
+    assert main(["run", str(case), "-o", str(out), "--workers", "1"]) == 1
+    env = json.loads((out / "studies" / "walk" / "envelope.json").read_text())
+    assert env["converged"] is False and env["solves"] == 3
+    assert env["failures"] == [{"position": 12.0, "message": "made to fail"}]
+    # the envelope comes from the solves that converged, never from the failed one
+    assert env["members"]["H3"]["governing"]["max"] != {"position": 12.0}
+    data = json.loads((out / "results.json").read_text())
+    assert data["studies"]["walk"]["failed"] == 1 and "permanent" in data["results"]
+
+
+def test_an_unreachable_scheduler_is_one_line_exit_2(tmp_path, capsys, monkeypatch):
+    pytest.importorskip("distributed")
+    import cablefe.studies.runner as runner
+    from cablefe.cli import main
+    monkeypatch.setattr(runner, "CONNECT_TIMEOUT", 2)
+    case = tmp_path / "deck.toml"
+    case.write_text(deck_case(_study_block(name='"walk"', kind='"sweep"', path=LANE, load="[0, 0, -20]",
+                                           steps=2, watch='["D3"]')))
+    code = main(["study", str(case), "-o", str(tmp_path / "out"), "--scheduler", "tcp://127.0.0.1:9"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 2 and len(err) == 1 and "no Dask scheduler" in err[0]

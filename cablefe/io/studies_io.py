@@ -74,6 +74,8 @@ def envelope_dict(outcome, units) -> dict:
         if extra:
             e["linear"] = {s: [None if v is None else v / L for v in extra["linear"][s]] for s in ("max", "min")}
             e["nonlinear"] = extra["nonlinear"]
+            if "failed" in extra:   # its own critical patch did not converge
+                e["failed"] = extra["failed"]
         if stats is not None:
             e["mean_displacement"] = [v / L for v in stats["mean_displacement"][k]]
             e["std_displacement"] = [v / L for v in stats["std_displacement"][k]]
@@ -87,6 +89,8 @@ def envelope_dict(outcome, units) -> dict:
         if extra:
             e["linear"] = {s: v / F for s, v in extra["linear"].items()}
             e["nonlinear"] = extra["nonlinear"]
+            if "failed" in extra:
+                e["failed"] = extra["failed"]
         if stats is not None:
             for name in ("mean_tension", "std_tension", "p05_tension", "p95_tension"):
                 e[name] = float(stats[name][k] / F)

@@ -21,12 +21,14 @@ class StudiesDone:
     summary : study name -> entry for results.json ``"studies"``
     outcomes : study name -> :class:`cablefe.studies.run.StudyOutcome`
     failed : names of studies with at least one failed solve
+    skipped : (name, reason) of studies not run (their base was not solved)
     """
 
     written: list
     summary: dict
     outcomes: dict
     failed: list
+    skipped: list
 
 
 def select_studies(spec, only=None) -> list:
@@ -62,8 +64,13 @@ def run_studies(results: Results, out, studies=None, workers: int | None = None,
     from .run import run_study
     model = results.model
     studies = list(model.spec.studies) if studies is None else list(studies)
-    written, summ, outcomes, failed = [], {}, {}, []
+    written, summ, outcomes, failed, skipped = [], {}, {}, [], []
+    first = model.results_to_run()[0][0] if model.results_to_run() else None
     for st in studies:
+        if (st.base or first) not in results.names:
+            skipped.append((st.name, f'its base result "{st.base or first}" was not solved'))
+            log.warning("study %s skipped: %s", st.name, skipped[-1][1])
+            continue
         bar = None
         if progress_stream is not None:
             def write(text, _s=progress_stream):
@@ -78,7 +85,7 @@ def run_studies(results: Results, out, studies=None, workers: int | None = None,
         if not outcome.converged:
             failed.append(st.name)
             log.warning("study %s: %d solve(s) failed (marked in its envelope.json)", st.name, len(outcome.failures))
-    return StudiesDone(written, summ, outcomes, failed)
+    return StudiesDone(written, summ, outcomes, failed, skipped)
 
 
 def study_case(case, out, only=None, workers=None, scheduler=None, solver=None, progress_stream=None):

@@ -244,6 +244,12 @@ def _flag_nonlinear(out: StudyOutcome, infl: InfluenceLines, own: dict, got: lis
         flagged = bool(ok and abs(d_nl - d_lin) > NONLINEAR_FLAG * max(abs(d_lin), abs(d_nl))
                        and abs(d_nl - d_lin) > NEGLIGIBLE_CHANGE * scale[kind])
         name = infl.owner[r]
+        if not ok:   # the critical patch of this response did not converge
+            e = out.node_extra if kind == "displacement" else out.member_extra
+            e.setdefault(name, {"linear": {"max": [None] * 3, "min": [None] * 3} if kind == "displacement"
+                                else {}, "nonlinear": {"max": [False] * 3, "min": [False] * 3}
+                                if kind == "displacement" else {}})
+            e[name].setdefault("failed", {})[sense] = True
         if kind == "displacement":
             e = out.node_extra.setdefault(name, {"linear": {"max": [None] * 3, "min": [None] * 3},
                                                  "nonlinear": {"max": [False] * 3, "min": [False] * 3}})

@@ -21,6 +21,11 @@ from .base import StudyContext, TaskResult, forget_session, run_task, session_fo
 log = logging.getLogger(__name__)
 
 
+class RunnerError(RuntimeError):
+    """The solves could not be started: no Dask cluster at the address, or
+    the ``distributed`` package is missing."""
+
+
 def default_workers() -> int:
     """All cores this process may use."""
     try:
@@ -97,11 +102,15 @@ class Runner:
     def _dask(self, ctx, tasks):
         try:
             from distributed import Client, as_completed as dask_completed
-        except ImportError as exc:  # pragma: no cover - depends on the installation
-            raise RuntimeError("--scheduler needs the distributed package: pip install 'cablefe[distributed]'") \
-                from exc
+        except ImportError:  # pragma: no cover - depends on the installation
+            raise RunnerError("--scheduler needs the distributed package: "
+                              "pip install 'cablefe[distributed]'") from None
         out: list = [None] * len(tasks)
-        with Client(self.scheduler, set_as_default=False) as client:
+        try:
+            client = Client(self.scheduler, set_as_default=False, timeout=CONNECT_TIMEOUT)
+        except (OSError, TimeoutError, ValueError) as exc:
+            raise RunnerError(f"no Dask scheduler reached at {self.scheduler}: {exc}") from None
+        with client:
             shared = client.scatter(ctx, broadcast=True)
             futures = client.map(run_task, [shared] * len(tasks), tasks, pure=False)
             index = {f.key: k for k, f in enumerate(futures)}
@@ -112,6 +121,9 @@ class Runner:
             client.run(forget_session, ctx.token)
         return out
 
+
+#: seconds to wait for a Dask scheduler
+CONNECT_TIMEOUT = 20
 
 _CONTEXT: StudyContext | None = None
 
