@@ -57,6 +57,20 @@ def initial_state(model: Model) -> State:
     return State(model.coordinates.copy(), rot)
 
 
+def cable_inputs(table, loads: LoadVectors, lam: float) -> tuple[np.ndarray, np.ndarray]:
+    """Stress-free length (m) and weight per unit stress-free length (N/m) of
+    the catenary elements at load factor ``lam``.
+
+    A thermal strain e stretches the stress-free length to ``L0 (1 + e)``
+    but leaves the mass alone: the weight per unit of the stretched length
+    is ``w0 / (1 + e)``, so the element weighs ``w0 L0`` whatever the
+    temperature (Irvine 1981, Cable Structures, sec. 1.3, thermal effects).
+    """
+    strain = lam * loads.strain["cable"]
+    stretch = 1.0 + strain
+    return table.props["unstressed_length"] * stretch, lam * loads.weight["cable"] / stretch
+
+
 def _unique_inverse(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Sorted unique values of an int64 array and the index of each entry in them.
 
@@ -151,9 +165,11 @@ class Assembler:
                 out[f] = bar.response(xi, xj, p["unstressed_length"] * (1.0 + strain), p["EA"],
                                       p["tension_only"], want_tangent)
             elif f == "cable":
-                weight = lam * loads.weight[f]
-                r = catenary.response(xi, xj, p["unstressed_length"] * (1.0 + strain), p["EA"],
-                                      weight, guess=self._guess.get(f), want_tangent=want_tangent)
+                L0, weight = cable_inputs(table, loads, lam)
+                # an unconverged inner solve is marked in r.converged and fails
+                # the analysis step (solvers.static), so it is not logged here
+                r = catenary.response(xi, xj, L0, p["EA"], weight, guess=self._guess.get(f),
+                                      want_tangent=want_tangent, warn=False)
                 if remember:
                     self._guess[f] = (r.H, r.V)
                 out[f] = r

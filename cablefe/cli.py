@@ -59,7 +59,8 @@ def _parser() -> argparse.ArgumentParser:
                    help="sparse linear solver backend (default: [analysis] solver or auto)")
 
     for name, text in (("solve", "nonlinear static analysis of every combination"),
-                       ("run", "everything the case asks for: shape (if [shape]), solve, further studies")):
+                       ("run", "everything the case asks for: shape (if [shape]), solve, further studies, "
+                               "design checks and sizing (if [design]), report.html")):
         s = sub.add_parser(name, help=text, description=text, epilog=EXAMPLES[name],
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         s.add_argument("case", help="case file (TOML)")
@@ -122,34 +123,19 @@ def cmd_check(args) -> int:
     runs = model.results_to_run()
     print(f"results to solve: {', '.join(n for n, _ in runs) or 'none'}")
     print(f"form-finding: {spec.shape.method if spec.shape else 'none'}")
+    if spec.design is not None:
+        d = spec.design
+        print(f"design checks: on {', '.join(d.results)}; {len(d.size)} size group(s)"
+              + (f"; PLACEHOLDER factors: {', '.join(d.placeholders)}" if d.placeholders else ""))
+    for w in model.warnings:
+        print(f"WARNING: {w}")
     return 0
 
 
-def _summary(results) -> None:
-    import numpy as np
-    m = results.model
-    u = m.spec.units
-    for res in results.items:
-        o = res.outcome
-        disp = np.linalg.norm(res.state.positions - m.coordinates, axis=1)
-        k = int(np.argmax(disp)) if len(disp) else 0
-        mf = results.member_forces(res.name)
-        j = int(np.argmax(mf.max_tension)) if len(mf.max_tension) else 0
-        flag = "converged" if o.converged else f"NOT CONVERGED ({o.message})"
-        print(f"  {res.name}: {flag}; load factor {o.load_factor:.3f}, {o.iterations} iterations")
-        for w in o.warnings:
-            print(f"    WARNING: {w}")
-        if len(disp):
-            print(f"    largest displacement {_fmt(disp[k] / u.length_scale, u.length)} at node {m.node_ids[k]}")
-        if len(mf.max_tension):
-            print(f"    largest tension {_fmt(mf.max_tension[j] / u.force_scale, u.force)} in member "
-                  f"{m.members[j].id}; slack members: {int(mf.slack.sum())}")
-        deck = results.deck_deflection(res.name)
-        if deck is not None:
-            L = u.length_scale
-            print(f"    largest deck deflection {abs(deck['vertical']) / L:.3f} {u.length} "
-                  f"({'down' if deck['vertical'] < 0 else 'up'}) at node {deck['node']}, "
-                  f"x = {deck['x'] / L:.1f} {u.length}")
+def _summary(results, design=None) -> None:
+    from .report.summary import summary_lines
+    for line in summary_lines(results, design):
+        print(line)
 
 
 def _shape(case_path, shaped_path, solver=None) -> bool:
@@ -222,23 +208,33 @@ def cmd_solve(args, shape_first=False) -> int:
 
     results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
     written = write_results(results, out)
-    if shape_first:  # `run` adds plots and a report
-        from .io.report import write_report
-        note = f"Shaped first: `{case}` with its cutting table beside it." if case != args.case else ""
-        written += write_report(results, out, case, CAUTION, note)
-    print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
-    _summary(results)
-    if shape_first and model.spec.studies:   # `run`: the studies after the solve
+    design = done = None
+    if shape_first and model.spec.studies:   # `run`: the studies after the solve, before design
         from .studies.command import add_to_results, run_studies
         done = run_studies(results, out, workers=args.workers, scheduler=args.scheduler, solver=args.solver,
                            progress_stream=sys.stderr if live else None)
         written += [add_to_results(results, out, done)] + done.written
+    if shape_first:  # `run` adds design checks (and sizing), plots and a report
+        from .design.stage import design_stage
+        from .report.html import write_report
+        design = design_stage(results, out, CAUTION, args.case, args.solver)
+        if design is not None:
+            results, written = design.results, written + list(design.written)
+            if done is not None:   # design rewrote results.json
+                add_to_results(results, out, done)
+        written += write_report(results, out, case, CAUTION, design)
+    print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
+    _summary(results, design)
+    if done is not None:
         _study_summary(done)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
-    if shape_first and model.spec.studies and done.failed:
+    if done is not None and done.failed:
         print(f"cablefe: failed solves in studies: {', '.join(done.failed)} (marked in envelope.json)",
               file=sys.stderr)
+        return 1
+    if design is not None and not design.settled:
+        print(f"cablefe: sizing: {design.outcome.sizing['message']} (see design.json)", file=sys.stderr)
         return 1
     if not results.all_converged:
         bad = [r.name for r in results.items if not r.converged]
@@ -273,7 +269,34 @@ def cmd_study(args) -> int:
     return 0
 
 
+def _check_options(args) -> None:
+    """Options that name things the case or the machine may not have, checked before any work.
+
+    Raises CaseError (key ``--solver`` or ``--only``) so that nothing is
+    written for a mistyped name: ``run`` would otherwise shape (and write
+    the shaped case) before finding it.
+    """
+    from .errors import CaseError
+    from .io.case import solver_unavailable
+    solver = getattr(args, "solver", None)
+    if solver:
+        problem = solver_unavailable(solver)
+        if problem:
+            raise CaseError("--solver", problem, str(args.case))
+    only = getattr(args, "only", None)
+    if only:
+        from . import read_case
+        spec = read_case(args.case)
+        known = [c.name for c in spec.combinations] or list(spec.load_cases)
+        unknown = [name for name in dict.fromkeys(only) if name not in known]
+        if unknown:
+            what = "combination" if spec.combinations else "load case (the case has no combinations)"
+            raise CaseError("--only", f"no {what} named {', '.join(map(repr, unknown))} "
+                            f"(known: {', '.join(known) or 'none'})", str(args.case))
+
+
 def main(argv=None) -> int:
+    """Run the command line; returns the exit status (0, 1 or 2, 130 on Ctrl-C)."""
     from .errors import CaseError
     from .studies.runner import RunnerError
     try:
@@ -283,7 +306,10 @@ def main(argv=None) -> int:
         return 2
     logging.basicConfig(level=logging.INFO if args.verbose else logging.WARNING,
                         format="%(levelname)s %(name)s: %(message)s")
+    case = getattr(args, "case", None)
     try:
+        if args.command in ("solve", "run", "shape"):
+            _check_options(args)
         if args.command == "check":
             return cmd_check(args)
         if args.command == "solve":
@@ -299,9 +325,11 @@ def main(argv=None) -> int:
             try:
                 return cmd_new(args)
             except ValueError as exc:  # a bad parameter: the message names the option
-                print(f"cablefe new {args.family}: {exc}", file=sys.stderr)
+                print(" ".join(f"cablefe new {args.family}: {exc}".split("\n")), file=sys.stderr)
                 return 2
     except CaseError as exc:
+        if exc.file is None and case is not None:
+            exc = exc.with_file(str(case))
         print(f"cablefe: {exc}", file=sys.stderr)
         return 2
     except RunnerError as exc:
@@ -309,6 +337,9 @@ def main(argv=None) -> int:
         return 2
     except FileNotFoundError as exc:
         print(f"cablefe: {exc.filename}: file not found", file=sys.stderr)
+        return 2
+    except MemoryError:  # the size limit of the reader keeps ordinary cases well below this
+        print(f"cablefe: {case}: not enough memory for this model on this machine", file=sys.stderr)
         return 2
     except BrokenPipeError:  # output piped into a pager or head that closed early
         sys.stderr.close()

@@ -28,11 +28,18 @@ class CaseError(ValueError):
         super().__init__(self.__str__())
 
     def with_file(self, file: str) -> "CaseError":
-        return CaseError(self.key, self.message, file)
+        return type(self)(self.key, self.message, file)
 
     def __str__(self) -> str:
+        # one line whatever the message holds: the command line prints it as
+        # ``cablefe: file: key: message`` and tools read one line per error
         parts = [p for p in (self.file, self.key) if p]
-        return ": ".join(parts + [self.message])
+        return " ".join(": ".join(parts + [str(self.message)]).split("\n"))
+
+
+class UnknownResultError(CaseError):
+    """A result asked for by name (``names`` of :func:`cablefe.solve`,
+    ``--only`` on the command line) that the case does not define."""
 
 
 class MechanismError(ValueError):

@@ -7,7 +7,6 @@ text.
 """
 from __future__ import annotations
 
-import fnmatch
 import logging
 from dataclasses import dataclass, field
 from types import MappingProxyType
@@ -16,6 +15,7 @@ from typing import Mapping
 import numpy as np
 
 from .errors import CaseError
+from .patterns import PatternIndex, match_indices
 from .spec import (CaseSpec, MemberLoad, NodalLoad, PatchLoad, PrescribedDisplacement,
                    SelfWeight, TemperatureLoad, DIRECTIONS)
 
@@ -126,6 +126,17 @@ class Model:
     ``initial_rotations`` (nn, 3, 3) are the nodal rotations the analysis
     starts from (identity where no reference rotation is given), None
     without rotations.  Displacements are measured from ``coordinates``.
+
+    Coordinates are local: ``coordinates``, ``reference_coordinates`` and
+    every :class:`~cablefe.assembly.State` are relative to ``origin`` (m,
+    site coordinates), chosen by :func:`local_origin`.  A model drawn on a
+    projected survey grid (x ~ 5e5 m, y ~ 5e6 m) stores its positions with
+    an absolute resolution of eps |x| ~ 1e-9 m, which a stiff cable turns
+    into a tension error of (EA/T) 1e-9 m / L (measured: 2e-5 relative on a
+    half-span crowd of a 60 m suspension span, 1e-3 at a 1e9 m offset).
+    Near the site's centre the resolution is that of the model's size.
+    Site positions are ``origin + local``, added back only on output
+    (:attr:`site_coordinates`, :meth:`to_site`).
     """
 
     spec: CaseSpec
@@ -142,6 +153,26 @@ class Model:
     combinations: tuple[tuple[str, Mapping[str, float]], ...] = field(default=())
     reference_coordinates: np.ndarray | None = None   # (nn, 3) m; None: ``coordinates``
     initial_rotations: np.ndarray | None = None       # (nn, 3, 3); None: identity / no rotations
+    origin: np.ndarray = field(default_factory=lambda: np.zeros(3))   # (3,) m, site position of local 0
+    #: sentences for the engineer about the model itself (coincident nodes,
+    #: implausible sections); every result repeats them
+    warnings: tuple = ()
+
+    @property
+    def site_coordinates(self) -> np.ndarray:
+        """(nn, 3) node coordinates as drawn in the case (site coordinates), m."""
+        return self.to_site(self.coordinates)
+
+    def to_site(self, positions) -> np.ndarray:
+        """Local positions (..., 3) m to site coordinates (for output only)."""
+        positions = np.asarray(positions, dtype=float)
+        return positions + self.origin if np.any(self.origin) else positions.copy()
+
+    @property
+    def size(self) -> float:
+        """Largest side of the bounding box of the nodes, m (0 for a single point)."""
+        c = self.coordinates
+        return float(np.ptp(c, axis=0).max()) if len(c) else 0.0
 
     @property
     def ndof(self) -> int:
@@ -204,14 +235,13 @@ class Model:
 
 
 def match_members(ids, patterns) -> list[int]:
-    """Indices of ids matching any of the shell-style patterns, in id order."""
-    if isinstance(patterns, str):
-        patterns = (patterns,)
-    out = []
-    for k, mid in enumerate(ids):
-        if any(p == mid or fnmatch.fnmatchcase(mid, p) for p in patterns):
-            out.append(k)
-    return out
+    """Indices of ids matching any of the ids or shell-style patterns, in id order.
+
+    ``ids`` is a sequence of ids or a :class:`~cablefe.patterns.PatternIndex`
+    built once for many calls; see :mod:`cablefe.patterns` for the rules.
+    """
+    index = ids if isinstance(ids, PatternIndex) else PatternIndex(ids)
+    return index.indices(patterns).tolist()
 
 
 def _section_data(spec: CaseSpec, member, key):
@@ -239,7 +269,10 @@ def build_model(spec: CaseSpec) -> Model:
         beam ``up`` parallel to the member, loads on missing paths).
     """
     node_ids = list(spec.nodes)
-    coords = [tuple(spec.nodes[n]) for n in node_ids]
+    site = np.array([spec.nodes[n] for n in node_ids], dtype=float).reshape(-1, 3)
+    origin = local_origin(site)
+    # every position below is local (relative to ``origin``): see Model
+    coords = [tuple(p) for p in (site - origin).tolist()]
     index = {n: k for k, n in enumerate(node_ids)}
     reference = spec.beam_reference
 
@@ -277,7 +310,7 @@ def build_model(spec: CaseSpec) -> Model:
             index[nid] = len(node_ids)
             node_ids.append(nid)
             if interior is not None:
-                coords.append(tuple(interior[k - 1]))
+                coords.append(tuple(np.subtract(interior[k - 1], origin).tolist()))
             elif hanging is not None:
                 coords.append(tuple(hanging[k - 1]))
             else:
@@ -300,8 +333,8 @@ def build_model(spec: CaseSpec) -> Model:
             # a beam is stress-free as drawn (or at its [beam_reference]
             # positions): each element's reference length is its own chord
             # there (given interior points need not be evenly spaced)
-            pts = np.array([reference[node_ids[c]].position if node_ids[c] in reference else coords[c]
-                            for c in chain], dtype=float)
+            pts = np.array([np.subtract(reference[node_ids[c]].position, origin) if node_ids[c] in reference
+                            else coords[c] for c in chain], dtype=float)
             if (pieces := np.linalg.norm(np.diff(pts, axis=0), axis=1)).min() <= 0.0:
                 raise CaseError("beam_reference", f'beam member "{mem.id}": two consecutive nodes have the '
                                 "same stress-free position (zero-length element)")
@@ -349,7 +382,7 @@ def build_model(spec: CaseSpec) -> Model:
     dof = -np.ones((nn, 6), dtype=np.int64)
     dof[has] = np.arange(int(has.sum()))
     ndof = int(has.sum())
-    reference_coordinates, initial_rotations = _beam_reference(spec, index, coordinates, rot)
+    reference_coordinates, initial_rotations = _beam_reference(spec, index, coordinates, rot, origin)
 
     supported = np.zeros(ndof, dtype=bool)
     for nid, mask in spec.supports.items():
@@ -415,17 +448,54 @@ def build_model(spec: CaseSpec) -> Model:
                   families=MappingProxyType(families), members=tuple(members),
                   member_index=MappingProxyType({m.id: k for k, m in enumerate(members)}),
                   load_cases=MappingProxyType({}), reference_coordinates=reference_coordinates,
-                  initial_rotations=initial_rotations)
+                  initial_rotations=initial_rotations, origin=origin)
     cases = _build_loads(spec, model)
     combos = tuple((c.name, MappingProxyType(dict(c.factors))) for c in spec.combinations)
     from dataclasses import replace
     model = replace(model, load_cases=MappingProxyType(cases), combinations=combos)
     report_deck_nodes(model)   # fail at build time, not after the analysis
-    return model
+    notes = model_warnings(model)
+    for w in notes:
+        # info only: form-finding builds many models; ``check`` prints these
+        # and every result repeats them in its warnings
+        log.info(w)
+    return replace(model, warnings=tuple(notes)) if notes else model
+
+
+#: nodes closer than this fraction of the model's size are taken as one point
+COINCIDENT = 1e-9
+#: a section area above this (m^2) in a file whose lengths are in metres is
+#: most likely a value in mm^2 or cm^2 typed as m^2 (common practice: the
+#: largest bridge cables and girders have areas well below 1 m^2)
+PLAUSIBLE_AREA = 1.0
+
+
+def model_warnings(model: Model) -> list[str]:
+    """Warnings about the model as built (not errors): coincident nodes, implausible sections."""
+    notes = []
+    X = model.coordinates
+    if len(X) > 1:
+        from scipy.spatial import cKDTree
+        tol = COINCIDENT * max(model.size, np.finfo(float).tiny)
+        pairs = cKDTree(X).query_pairs(tol, output_type="ndarray")
+        if len(pairs):
+            shown = ", ".join(f"{model.node_ids[a]} and {model.node_ids[b]}" for a, b in pairs[:5].tolist())
+            more = f" and {len(pairs) - 5} more pairs" if len(pairs) > 5 else ""
+            notes.append(f"nodes at the same position (within {COINCIDENT:g} of the model's size): "
+                         f"{shown}{more}; they are not joined unless a member joins them")
+    spec = model.spec
+    if spec.units.length == "m":
+        used = {m.section for m in spec.members}
+        big = [(name, sec.area) for name, sec in spec.sections.items()
+               if name in used and sec.area > PLAUSIBLE_AREA]
+        for name, area in big:
+            notes.append(f'section "{name}": area {area:g} m^2 is above {PLAUSIBLE_AREA:g} m^2; '
+                         "mm^2 or cm^2 typed as m^2? (a bare number is in the file's units, here m)")
+    return notes
 
 
 def _beam_reference(spec: CaseSpec, index: Mapping[str, int], coordinates: np.ndarray,
-                    rot: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+                    rot: np.ndarray, origin=np.zeros(3)) -> tuple[np.ndarray, np.ndarray | None]:
     """Stress-free positions (nn, 3) m and starting rotations (nn, 3, 3) from ``[beam_reference]``.
 
     ``rot`` (nn,) marks the nodes touched by beams; only they may have an
@@ -446,11 +516,32 @@ def _beam_reference(spec: CaseSpec, index: Mapping[str, int], coordinates: np.nd
             raise CaseError(key, f'node "{name}" is joined to no beam; a stress-free geometry is given '
                             "for beam nodes only")
     rows = np.fromiter((index[n] for n in names), dtype=np.int64, count=len(names))
-    reference[rows] = np.array([spec.beam_reference[n].position for n in names], dtype=float).reshape(-1, 3)
+    reference[rows] = np.array([spec.beam_reference[n].position for n in names],
+                               dtype=float).reshape(-1, 3) - origin
     from .elements.beam import expm_so3
     theta = np.array([spec.beam_reference[n].rotation for n in names], dtype=float).reshape(-1, 3)
     rotations[rows] = expm_so3(theta)
     return reference, rotations
+
+
+def local_origin(site: np.ndarray) -> np.ndarray:
+    """Site position (3,) m of the local origin of a model with these node coordinates.
+
+    The bounding-box centre rounded to a multiple of ``g = 16 * 2^ceil(log2 size)``
+    (size: the box's largest side, at least 1 m).  A model drawn within a few
+    sizes of the origin keeps origin 0 (its local coordinates are the case's,
+    bit for bit); one drawn far away gets local coordinates of at most about
+    ``g`` in size, so positions and chords there carry the round-off of the
+    model's size, not of its distance from the origin.  ``g`` is a power of
+    two, so subtracting the origin from a site coordinate is exact.
+    """
+    site = np.asarray(site, dtype=float).reshape(-1, 3)
+    if not len(site) or not np.all(np.isfinite(site)):
+        return np.zeros(3)
+    lo, hi = site.min(axis=0), site.max(axis=0)
+    size = max(float((hi - lo).max()), 1.0)
+    g = 16.0 * 2.0 ** np.ceil(np.log2(size))
+    return np.round(0.5 * (lo + hi) / g) * g + 0.0   # + 0.0: no negative zeros
 
 
 def report_deck_nodes(model: Model) -> np.ndarray | None:
@@ -475,8 +566,7 @@ def report_deck_nodes(model: Model) -> np.ndarray | None:
             not all(isinstance(p, str) for p in patterns):
         raise CaseError("report.deck", f"expected a list of node id patterns such as [\"D*\"], "
                         f"found {patterns!r}")
-    hit = [k for k, nid in enumerate(model.node_ids)
-           if any(p == nid or fnmatch.fnmatchcase(nid, p) for p in patterns)]
+    hit = match_indices(patterns, model.node_ids)
     if not hit:
         raise CaseError("report.deck", f"no node matches {list(patterns)}")
     return np.asarray(hit, dtype=np.int64)
@@ -736,11 +826,13 @@ def _segment_elements(model: Model, a: str, b: str):
 
 def _build_loads(spec: CaseSpec, model: Model) -> dict[str, LoadVectors]:
     builders: dict[str, _LoadBuilder] = {}
-    ids = [m.id for m in model.members]
+    ids = PatternIndex([m.id for m in model.members])   # indexed once for every load
     for k, load in enumerate(spec.loads):
         key = load.key or f"loads[{k}]"
         lb = builders.setdefault(load.case, _LoadBuilder(model))
         if isinstance(load, SelfWeight):
+            if not load.factor > 0.0:  # a spec built in code skips the reader's check
+                raise CaseError(f"{key}.factor", f"expected a self-weight factor > 0, found {load.factor!r}")
             for f, t in model.families.items():
                 if not len(t):
                     continue

@@ -98,12 +98,33 @@ def member_forces(model: Model, result: StaticResult) -> MemberForces:
     return MemberForces(tension, mx, mn, slack, elements, beams)
 
 
-def result_header(res: StaticResult) -> dict:
-    """The per-result entries of results.json before ``nodes`` and ``members``."""
+def result_header(res: StaticResult, force_scale: float = 1.0, length_scale: float = 1.0) -> dict:
+    """The per-result entries of results.json before ``nodes`` and ``members``.
+
+    ``equilibrium`` is :func:`cablefe.solvers.static.equilibrium_check` in
+    the file's units (forces divided by ``force_scale`` N, moments by
+    ``force_scale * length_scale`` N m).
+    """
     o = res.outcome
     return {"converged": bool(o.converged), "load_factor": float(o.load_factor),
             "iterations": int(o.iterations), "residual": float(o.residual), "status": o.status,
-            "message": o.message, "factors": dict(res.factors), "warnings": list(o.warnings)}
+            "message": o.message, "factors": dict(res.factors), "warnings": list(res.warnings),
+            "equilibrium": equilibrium_in_units(res.equilibrium, force_scale, length_scale)}
+
+
+def equilibrium_in_units(eq: Mapping, force_scale: float, length_scale: float) -> dict:
+    """The equilibrium check with forces in ``force_scale`` N and moments in ``force_scale * length_scale`` N m."""
+    out = {}
+    for key, value in eq.items():
+        if key in ("largest_unbalanced_force", "load_scale"):
+            out[key] = float(value) / force_scale
+        elif key == "largest_unbalanced_moment":
+            out[key] = float(value) / (force_scale * length_scale)
+        elif key in ("total_load", "reactions_plus_loads"):
+            out[key] = [float(v) / force_scale for v in value]
+        else:
+            out[key] = value
+    return out
 
 
 @dataclass(frozen=True)
@@ -129,6 +150,14 @@ class Results:
             if r.name == name:
                 return r
         raise KeyError(f"no result named {name!r} (known: {', '.join(self.names)})")
+
+    def positions(self, name: str) -> np.ndarray:
+        """(nn, 3) deformed node positions in site coordinates (as in the case), m.
+
+        ``self[name].state.positions`` are the same positions relative to
+        the model's local origin (``model.origin``).
+        """
+        return self.model.to_site(self[name].state.positions)
 
     def displacements(self, name: str) -> np.ndarray:
         """(nn, 3) displacements from the model's coordinates, m."""
@@ -164,7 +193,7 @@ class Results:
         dict or None
             ``node`` (id), ``index``, ``displacement`` (3,) m, ``vertical``
             (z displacement, m, negative down) and ``x`` (the node's x in
-            the model's coordinates, m); None when the case has no
+            site coordinates, m); None when the case has no
             ``[report] deck``.
         """
         nodes = report_deck_nodes(self.model)
@@ -174,7 +203,7 @@ class Results:
         k = int(np.argmax(np.abs(disp[:, 2])))
         n = int(nodes[k])
         return {"node": self.model.node_ids[n], "index": n, "displacement": disp[k].copy(),
-                "vertical": float(disp[k, 2]), "x": float(self.model.coordinates[n, 0])}
+                "vertical": float(disp[k, 2]), "x": float(self.model.site_coordinates[n, 0])}
 
     def as_dict(self) -> dict:
         """The results file content (contract v1), in the case's units."""
@@ -185,6 +214,7 @@ class Results:
         for res in self.items:
             pos = res.state.positions
             disp = pos - m.coordinates
+            pos = m.to_site(pos)   # positions are written in site coordinates
             # whole arrays to lists once, then one small dict per node and
             # member (a per-node numpy call costs more than the dict itself)
             nodes = {nid: {"position": p, "displacement": d} for nid, p, d in
@@ -228,7 +258,7 @@ class Results:
                     e["moment"] = ends[:, :, 4:6].tolist()
                     e["local_end_forces"] = ends.reshape(-1, 12).tolist()
                 members[mem.id] = e
-            out["results"][res.name] = {**result_header(res), "nodes": nodes, "members": members}
+            out["results"][res.name] = {**result_header(res, F, L), "nodes": nodes, "members": members}
             deck = self.deck_deflection(res.name)
             if deck is not None:   # extension: [report] deck
                 out["results"][res.name]["deck"] = {"node": deck["node"],

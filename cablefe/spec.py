@@ -41,6 +41,7 @@ class Material:
     G: float                    # Pa (default E / 2.6)
     unit_weight: float = 0.0    # N/m^3
     alpha: float = 0.0          # 1/K
+    fy: float | None = None     # Pa, yield strength for the beam stress check
 
 
 @dataclass(frozen=True)
@@ -54,6 +55,8 @@ class Section:
     Iy: float | None = None           # m^4, bending about local y
     Iz: float | None = None           # m^4, bending about local z
     J: float | None = None            # m^4, torsion constant
+    Wy: float | None = None           # m^3, elastic section modulus for bending about local y
+    Wz: float | None = None           # m^3, elastic section modulus for bending about local z
 
 
 @dataclass(frozen=True)
@@ -181,7 +184,9 @@ class AnalysisSettings:
     tolerance: float = 1e-8
     max_iterations: int = 30
     solver: str = "auto"              # linear solver backend
-    max_cuts: int = 12                # extension: how often an increment may be halved
+    max_cuts: int = 12                # extension: how often an increment may be halved in a row
+    max_total_iterations: int = 400   # extension: Newton iterations per result (work budget)
+    max_total_cuts: int = 40          # extension: increment cuts per result (work budget)
 
 
 @dataclass(frozen=True)
@@ -233,6 +238,9 @@ class CaseSpec:
     raw: Mapping[str, Any] | None = None  # the parsed TOML, kept for faithful rewriting
     extra: Mapping[str, Any] = field(default_factory=dict)  # tables for later studies
     studies: tuple[StudySpec, ...] = ()        # ``[[studies]]``
+    # ``[design]`` with its ``[[design.size]]`` groups, and ``[catalogues.*]``
+    design: "DesignSpec | None" = None
+    catalogues: Mapping[str, "Catalogue"] = field(default_factory=dict)
 
     @property
     def load_cases(self) -> tuple[str, ...]:
@@ -241,6 +249,72 @@ class CaseSpec:
         for load in self.loads:
             seen.setdefault(load.case, None)
         return tuple(seen)
+
+
+@dataclass(frozen=True)
+class CatalogueSection:
+    """One section of a catalogue, SI units; beam data optional."""
+
+    name: str
+    area: float                       # m^2
+    breaking_load: float | None = None  # N
+    weight: float | None = None       # N/m
+    diameter: float | None = None     # m
+    Iy: float | None = None           # m^4
+    Iz: float | None = None           # m^4
+    J: float | None = None            # m^4
+    Wy: float | None = None           # m^3
+    Wz: float | None = None           # m^3
+
+
+@dataclass(frozen=True)
+class Catalogue:
+    """Sections to choose from, smallest first (by area, then breaking load)."""
+
+    name: str
+    material: str
+    sections: tuple[CatalogueSection, ...]
+    source: str = ""                  # "catalogues.NAME" or the CSV file read
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class SizeGroup:
+    """Members that get one common catalogue section."""
+
+    members: tuple[str, ...]          # patterns
+    catalogue: str
+    key: str = ""
+
+
+#: Placeholder defaults of the design factors: the engineer sets them from
+#: the governing code.
+DESIGN_DEFAULTS = {"cable_factor": 2.2, "min_tension": 0.1, "deflection_limit": 300.0,
+                   "yield_factor": 1.1}
+
+
+@dataclass(frozen=True)
+class DesignSpec:
+    """``[design]``: which results and members are checked, and the factors.
+
+    ``placeholders`` names the factors left at their default (placeholders
+    for the engineer to set).  ``permanent`` names the result holding the
+    permanent state (None: found by :func:`cablefe.design.checks.permanent_result`);
+    ``span`` (m) overrides the deck span taken from the deck nodes.
+    """
+
+    results: tuple[str, ...] = ("*",)
+    members: tuple[str, ...] = ("*",)
+    cable_factor: float = DESIGN_DEFAULTS["cable_factor"]
+    min_tension: float = DESIGN_DEFAULTS["min_tension"]
+    deflection_limit: float = DESIGN_DEFAULTS["deflection_limit"]
+    yield_factor: float = DESIGN_DEFAULTS["yield_factor"]
+    placeholders: tuple[str, ...] = tuple(DESIGN_DEFAULTS)
+    permanent: str | None = None
+    span: float | None = None
+    size: tuple[SizeGroup, ...] = ()
+    max_sizing_iterations: int = 10
+    key: str = "design"
 
 
 def support_mask(code: str) -> tuple[bool, ...] | None:

@@ -19,3 +19,60 @@ def make_spec(nodes, members, supports, loads=(), combinations=(), sections=None
 @pytest.fixture
 def spec_factory():
     return make_spec
+
+
+# ---------------------------------------------------------------------------
+# The verification manual (docs/verification.md) is generated from the tests:
+# each outside check calls ``verify.check(...)``, which asserts and records
+# the problem, its published source, the reference value and cablefe's value.
+# ``python docs/make_verification.py`` runs the suite with
+# CABLEFE_VERIFICATION set and writes the manual from the records, and
+# tests/test_verification_manual.py fails when the manual and the tests
+# disagree on which checks exist.
+
+_VERIFICATION_RECORDS: list[dict] = []
+
+
+def _summary(values) -> float | list[float]:
+    a = np.asarray(values, dtype=float)
+    return float(a) if a.ndim == 0 else [float(v) for v in a.ravel()[:6]]
+
+
+class Verification:
+    """Assert a computed value against an outside reference and record both."""
+
+    def __init__(self, nodeid: str):
+        self.nodeid = nodeid
+
+    def check(self, problem: str, source: str, computed, reference, *, rtol: float = 0.0,
+              atol: float = 0.0, unit: str = "") -> None:
+        """``assert_allclose(computed, reference, rtol, atol)``, recorded for the manual.
+
+        ``problem`` says what is checked; ``source`` names the outside
+        reference (author, year, title, equation or table; ``from memory``
+        or ``common practice`` where that applies).
+        """
+        from numpy.testing import assert_allclose
+        computed_a = np.asarray(computed, dtype=float)
+        reference_a = np.asarray(reference, dtype=float)
+        scale = np.maximum(np.abs(reference_a), np.finfo(float).tiny)
+        worst = float(np.max(np.abs(computed_a - reference_a) / scale)) if reference_a.size else 0.0
+        _VERIFICATION_RECORDS.append({
+            "test": self.nodeid, "problem": problem, "source": source, "unit": unit,
+            "reference": _summary(reference_a), "computed": _summary(computed_a),
+            "relative_difference": worst, "rtol": rtol, "atol": atol})
+        assert_allclose(computed_a, reference_a, rtol=rtol, atol=atol, err_msg=problem)
+
+
+@pytest.fixture
+def verify(request) -> Verification:
+    return Verification(request.node.nodeid)
+
+
+def pytest_sessionfinish(session, exitstatus):
+    import json
+    import os
+    out = os.environ.get("CABLEFE_VERIFICATION")
+    if out and _VERIFICATION_RECORDS:
+        with open(out, "w", encoding="utf-8") as f:
+            json.dump(_VERIFICATION_RECORDS, f, indent=1)

@@ -1,6 +1,6 @@
 """[beam_reference]: the stress-free geometry of beams in a shaped case."""
 import copy
-import tomllib
+import tomli
 from pathlib import Path
 
 import numpy as np
@@ -58,7 +58,7 @@ per_length = [0, 0, -3.0]
 
 
 def small(reference=None):
-    data = tomllib.loads(SMALL)
+    data = tomli.loads(SMALL)
     if reference is not None:
         data["beam_reference"] = reference
     return data

@@ -56,7 +56,7 @@ def solve(s):
 # linear handbook cases through the whole solver
 # ---------------------------------------------------------------------------
 
-def test_simply_supported_girder_under_uniform_load():
+def test_simply_supported_girder_under_uniform_load(verify):
     # source: simply supported beam under uniform load w: midspan deflection
     # 5 w L^4 / (384 E I), midspan moment w L^2 / 8, end shear w L / 2
     # (Roark's Formulas for Stress and Strain, Table 8.1, case 2e; from memory).
@@ -83,7 +83,9 @@ def test_simply_supported_girder_under_uniform_load():
         s = make_spec(nodes, members, sup, loads=loads, materials=mats, sections=SECS, analysis=TIGHT)
         res = solve(s)
         mid = res.node_displacement("q", f"G.{n // 2}")
-        assert_allclose(mid[2], -delta, rtol=rtol, err_msg=name)
+        verify.check(f"simply supported girder, uniform load ({name}): midspan deflection 5wL^4/384EI",
+                     "Roark's Formulas for Stress and Strain, Table 8.1, case 2e (from memory)",
+                     mid[2], -delta, rtol=rtol, unit="m")
         assert abs(mid[1]) < 1e-12 * delta
         d = res.as_dict()["results"]["q"]["members"]["G"]
         moment = np.array(d["moment"])   # (element, end, [My, Mz]), N m (make_spec units)
@@ -98,7 +100,7 @@ def test_simply_supported_girder_under_uniform_load():
 
 
 @pytest.mark.parametrize("direction", ["z", "y"])
-def test_cantilever_tip_load(direction):
+def test_cantilever_tip_load(direction, verify):
     # source: cantilever with a tip load P: tip deflection P L^3 / (3 E I),
     # fixed-end moment P L (Roark's Formulas for Stress and Strain, Table 8.1,
     # case 1a; from memory).  Nodally exact for Hermite elements; geometric
@@ -114,7 +116,9 @@ def test_cantilever_tip_load(direction):
     res = solve(s)
     tip = res.node_displacement("tip", "B")
     rtol = (P * L**2 / (2 * E * I)) ** 2
-    assert_allclose(tip[axis], -P * L**3 / (3 * E * I), rtol=rtol)
+    verify.check(f"cantilever, tip load along {direction}: tip deflection PL^3/3EI",
+                 "Roark's Formulas for Stress and Strain, Table 8.1, case 1a (from memory)",
+                 tip[axis], -P * L**3 / (3 * E * I), rtol=rtol, unit="m")
     d = res.as_dict()["results"]["tip"]
     m = np.array(d["members"]["G"]["moment"])
     # moment vector of the outer part on the inner part: (L e_x) x (-P e_axis)
@@ -225,7 +229,7 @@ def cantilever_tip_fe(n, k2, L=1.0, increments=4):
     return np.array([tip[0], -tip[2]]) / L
 
 
-def test_elastica_of_cantilever_under_tip_load():
+def test_elastica_of_cantilever_under_tip_load(verify):
     # source: Bisshopp & Drucker 1945, Large deflection of cantilever beams,
     # Q. Appl. Math. 3, eq. for theta'' + (P/EI) cos(theta) = 0; reference by
     # scipy solve_bvp.  P L^2 / EI = 3 (tip turns by about 1.1 rad).  Mesh
@@ -234,7 +238,9 @@ def test_elastica_of_cantilever_under_tip_load():
     # ~1e-5.  Allowed: 1e-4 L.
     ref = np.array(elastica_tip(3.0))
     fe = cantilever_tip_fe(32, 3.0)
-    assert_allclose(fe, ref, rtol=0, atol=1e-4)
+    verify.check("elastica of a cantilever, PL^2/EI = 3: tip position / L (32 elements)",
+                 "Bisshopp & Drucker 1945, Q. Appl. Math. 3; reference by scipy solve_bvp",
+                 fe, ref, atol=1e-4)
 
 
 def test_elastica_converges_at_second_order():
@@ -251,7 +257,7 @@ def test_elastica_converges_at_second_order():
     assert_allclose(rate, 2.0, atol=0.15)
 
 
-def test_euler_load_of_pinned_column_from_assembled_tangent():
+def test_euler_load_of_pinned_column_from_assembled_tangent(verify):
     # source: Euler 1744: a pinned column buckles at P = pi^2 E I / L^2.
     # Found as the load at which the smallest eigenvalue of the assembled
     # free-DOF tangent, at the straight compressed equilibrium, crosses zero.
@@ -283,7 +289,9 @@ def test_euler_load_of_pinned_column_from_assembled_tangent():
     P16, P32 = critical(16), critical(32)
     Pe = np.pi**2 * E * IZ / L**2
     eps = Pe / (E * A)
-    assert_allclose((4 * P32 - P16) / 3, Pe * (1 + eps), rtol=1e-5)
+    verify.check("pinned column: critical load from the tangent (Richardson, 16/32 elements)",
+                 "Euler 1744; pi^2 EI/L^2 with the axial shortening correction derived in the test",
+                 (4 * P32 - P16) / 3, Pe * (1 + eps), rtol=1e-5, unit="N")
     # and the mesh error itself falls at order 2: by 4 when h halves
     ratio = (P16 - Pe * (1 + eps)) / (P32 - Pe * (1 + eps))
     assert_allclose(ratio, 4.0, rtol=0.05)

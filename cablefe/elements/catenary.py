@@ -451,7 +451,7 @@ def _classify(l, h, L0, weight):
     return c, weightless, vertical, general
 
 
-def _solve(l, h, L0, weight, EA, guess, tol, max_iter):
+def _solve(l, h, L0, weight, EA, guess, tol, max_iter, warn=True):
     n = l.shape[0]
     W = weight * L0
     c, weightless, vertical, general = _classify(l, h, L0, weight)
@@ -495,7 +495,7 @@ def _solve(l, h, L0, weight, EA, guess, tol, max_iter):
         H[g] = Hg
         V[g] = Vg
         converged[g] = cg
-        if not np.all(cg):
+        if warn and not np.all(cg):
             logger.warning("catenary: inner Newton did not converge for %d of %d elements",
                            int(np.count_nonzero(~cg)), n)
     return H, V, converged
@@ -643,7 +643,8 @@ def _element_matrix(k):
     return K
 
 
-def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=True, tol=1e-12, max_iter=100):
+def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=True, tol=1e-12, max_iter=100,
+             warn=True):
     """Internal forces and tangent stiffness of elastic catenary elements.
 
     Parameters
@@ -656,6 +657,10 @@ def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=Tru
         Warm start, normally ``(previous.H, previous.V)``.
     want_tangent : bool
     tol, max_iter : passed to :func:`solve_end_forces`
+    warn : bool
+        Log a warning for elements whose inner solve did not converge
+        (``converged`` marks them either way); the static analysis turns
+        them into a failed step instead.
 
     Returns
     -------
@@ -682,7 +687,7 @@ def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=Tru
     d = xj - xi
     l = np.hypot(d[:, 0], d[:, 1])
     h = d[:, 2]
-    H, V, converged = _solve(l, h, L0, weight, EA, guess, float(tol), int(max_iter))
+    H, V, converged = _solve(l, h, L0, weight, EA, guess, float(tol), int(max_iter), warn)
     W = weight * L0
     Va = V - W
     c, weightless, vertical, general = _classify(l, h, L0, weight)

@@ -55,11 +55,31 @@ Extensions to the interface page
     are still measured from ``[nodes]``.
 ``[shape]``: ``fabrication_temperature`` (temperature difference of the
     fabrication state from the analysis state, K) and ``max_iterations``.
-``[analysis]``: ``solver`` (one of :data:`SOLVERS`) and ``max_cuts``
-    (how often an increment may be halved).
-``[design]``, ``[studies]``, ``[modes]``, ``[report]``
-    Accepted as tables (or arrays of tables) and passed through unvalidated
-    in ``CaseSpec.extra`` for the features that read them.
+``[analysis]``: ``solver`` (one of :data:`SOLVERS`), ``max_cuts``
+    (how often an increment may be halved in a row), ``max_total_iterations``
+    and ``max_total_cuts`` (the work budget of one result: Newton iterations
+    and increment cuts over its whole load path).
+``[design]``, ``[catalogues]``, fy on materials, Wy and Wz on sections
+    Design checks and sizing: read by :mod:`cablefe.io.case_design`.
+``[report]``
+    ``deck = ["D*"]``: node ids or patterns whose largest vertical
+    deflection is reported; validated here (unknown keys, patterns that
+    match no node) and kept in ``CaseSpec.extra["report"]``.
+``[studies]``, ``[modes]``
+    Not implemented in this version: rejected with a message saying so
+    (:data:`NOT_IMPLEMENTED`), never accepted and ignored.
+
+Size limit: a case whose model would have more than :data:`MAX_DOFS`
+degrees of freedom or :data:`MAX_ELEMENTS` elements (``divide`` included) is
+rejected before anything is allocated; see :data:`MAX_DOFS` for how the
+limit follows from the memory a model needs.
+
+Keys that would do nothing are errors: a support ``rx``/``ry``/``rz`` on a
+node that has no rotations (joined to no beam; ``"all"`` means every
+direction the node has), a load, support movement or shape target on a node
+joined to no member, a prescribed rotation of a node without rotations.  (A
+support on a node joined to no member is harmless and only logged by the
+model: generated grids leave unused corner nodes supported.)
 
 Interior nodes of a divided member are named ``<member id>.<k>``, k = 1 …
 divide - 1 from the first node; they are valid wherever a node id is
@@ -75,7 +95,6 @@ from __future__ import annotations
 
 import contextlib
 import difflib
-import fnmatch
 import gc
 import json
 import math
@@ -91,6 +110,7 @@ except ImportError:  # pragma: no cover - depends on the installation
     import tomllib as _toml
 
 from ..errors import CaseError
+from ..patterns import PatternIndex
 from ..spec import (
     DIRECTIONS,
     MEMBER_TYPES,
@@ -122,16 +142,29 @@ __all__ = [
     "key_join",
     "TOP_LEVEL_KEYS",
     "PASS_THROUGH_KEYS",
+    "NOT_IMPLEMENTED",
+    "MAX_DOFS",
+    "MAX_ELEMENTS",
+    "MAX_COORDINATE",
     "SHAPE_METHODS",
     "SOLVERS",
 ]
 
 TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
                   "loads", "combinations", "shape", "analysis", "node_table", "member_table",
-                  "beam_reference", "studies")
-PASS_THROUGH_KEYS = ("design", "modes", "report")
-MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha")
-SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J")
+                  "beam_reference", "design", "catalogues", "studies")
+#: Top-level tables validated here and kept in ``CaseSpec.extra`` for the
+#: features that read them.
+PASS_THROUGH_KEYS = ("report",)
+#: Tables of the case format whose features this version does not have: a
+#: case that uses one is rejected (never read and ignored).  A feature that
+#: lands removes its entry here (and validates its table in the reader).
+NOT_IMPLEMENTED: Mapping[str, str] = {
+    "modes": "natural frequencies and mode shapes",
+}
+REPORT_KEYS = ("deck",)
+MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha", "fy")
+SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy", "Iz", "J", "Wy", "Wz")
 MEMBER_KEYS = ("id", "type", "nodes", "section", "length0", "pretension", "tension_only",
                "divide", "up", "interior")
 NODE_TABLE_KEYS = ("ids", "x", "y", "z")
@@ -143,7 +176,8 @@ SHAPE_KEYS = ("method", "permanent", "tolerance", "targets", "adjust", "force_de
               "fabrication_temperature", "max_iterations")
 ADJUST_KEYS = ("members", "together")
 BEAM_REFERENCE_KEYS = ("position", "rotation")
-ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts")
+ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts",
+                 "max_total_iterations", "max_total_cuts")
 SHAPE_METHODS = ("target", "force-density")
 SOLVERS = ("auto", "superlu", "splu-default", "pardiso")
 
@@ -156,8 +190,23 @@ LOAD_FORMS = ("self_weight = true [, factor]; node + force and/or moment; "
 #: anything closer is a duplicated point, not a short member.
 ZERO_LENGTH_FRACTION = 1e-9
 
+#: Largest model accepted, in degrees of freedom (3 per node, 6 at nodes
+#: joined to beams).  Memory grows with the DOFs: the cable-net benchmark
+#: (benchmarks/README.md) peaked at 6.2 GB for 0.99 million DOFs, about
+#: 6 kB per DOF, and sparse factorization fill grows faster than linearly.
+#: 10 million DOFs would need 60 GB or more, beyond one ordinary machine; a
+#: bigger case is almost always a typing slip (``divide = 100000000``), and
+#: is rejected before any array is allocated.
+MAX_DOFS = 10_000_000
+#: Largest number of elements (members times ``divide``), for the same reason.
+MAX_ELEMENTS = 10_000_000
+#: Largest coordinate accepted (m).  A double resolves about 2e-6 m at 1e10 m
+#: (machine epsilon 2.2e-16 times the value), so beyond this a structure's
+#: geometry cannot be told to the micrometre; projected survey grids reach
+#: 1e7 m.  Farther values are typing slips (a forgotten unit, 1e308).
+MAX_COORDINATE = 1e10
+
 _BARE_KEY = re.compile(r"[A-Za-z0-9_-]+\Z")
-_GLOB_CHARS = re.compile(r"[*?\[]")
 
 
 # ---------------------------------------------------------------------------
@@ -197,7 +246,7 @@ def interior_nodes(spec: CaseSpec) -> dict[str, tuple[float, float, float]]:
 
 
 def match_members(patterns: str | Iterable[str], member_ids: Sequence[str]) -> list[str]:
-    """Member ids equal to, or matching (:func:`fnmatch.fnmatchcase`), any pattern.
+    """Member ids equal to, or matching (shell-style, :mod:`cablefe.patterns`), any pattern.
 
     Parameters
     ----------
@@ -211,11 +260,8 @@ def match_members(patterns: str | Iterable[str], member_ids: Sequence[str]) -> l
     list of str
         Matching ids in case order.
     """
-    if isinstance(patterns, str):
-        patterns = (patterns,)
-    literal = set(patterns)  # exact ids first: an id may itself contain "[" or "*"
-    regexes = [re.compile(fnmatch.translate(p)) for p in literal if _GLOB_CHARS.search(p)]
-    return [m for m in member_ids if m in literal or any(rx.match(m) for rx in regexes)]
+    index = PatternIndex(member_ids)  # exact ids first: an id may itself contain "[" or "*"
+    return [index.ids[k] for k in index.indices(patterns)]
 
 
 # ---------------------------------------------------------------------------
@@ -252,6 +298,14 @@ def read_case(path: str | Path) -> CaseSpec:
         data = _toml.loads(text)
     except _toml.TOMLDecodeError as exc:
         raise CaseError("", _syntax_message(exc, text), file=source) from None
+    except RecursionError:
+        raise CaseError("", "TOML nested too deeply (arrays or tables inside each other beyond "
+                        "what the parser handles); a case needs a few levels at most", file=source) from None
+    except MemoryError:
+        raise CaseError("", "the case file is too big to parse in the memory available", file=source) from None
+    except Exception as exc:  # any other parser failure is still a problem of the file
+        raise CaseError("", f"cannot parse the file as TOML ({type(exc).__name__}: {exc})",
+                        file=source) from None
     return parse_case(data, source)
 
 
@@ -428,6 +482,10 @@ class _Reader:
         data = self.data
         if not isinstance(data, Mapping):
             raise CaseError("", f"expected a table of keys at the top level, found {describe_value(data)}")
+        for name, feature in NOT_IMPLEMENTED.items():
+            if name in data:
+                raise CaseError(name, f"[{name}] ({feature}) is not implemented in this version of cablefe; "
+                                "remove the table (it would not be used)")
         _check_keys(data, "", TOP_LEVEL_KEYS + PASS_THROUGH_KEYS)
         title = _string(data.get("title", ""), "title")
         self.units = unit_system(data.get("units"), "units")
@@ -435,16 +493,19 @@ class _Reader:
 
         materials = self.materials(data.get("materials", {}))
         sections = self.sections(data.get("sections", {}), materials)
+        self.expands = {name: materials[sec.material].alpha != 0.0 for name, sec in sections.items()}
         nodes = self.nodes(data.get("nodes", {}), data.get("node_table"))
         members = self.members(data.get("members", []), data.get("member_table", []),
                                nodes, sections, materials)
         self.member_list = members
         self.member_ids = [m.id for m in members]
         self.member_id_set = set(self.member_ids)
+        self.member_index = PatternIndex(self.member_ids)
         supports = self.supports(data.get("supports", {}))
         self.supports_map = supports
         loads = self.loads(data.get("loads", []))
         cases = {load.case for load in loads}
+        self.weight_cases = {load.case for load in loads if isinstance(load, SelfWeight)}
         combinations = self.combinations(data.get("combinations", []), cases)
         shape = self.shape(data["shape"], cases) if "shape" in data else None
         analysis = self.analysis(data.get("analysis", {}))
@@ -455,18 +516,15 @@ class _Reader:
             studies = read_studies(self, data["studies"],
                                    [c.name for c in combinations] or list(dict.fromkeys(l.case for l in loads)))
         extra = {}
-        for name in PASS_THROUGH_KEYS:
-            if name in data:
-                value = data[name]
-                if not (isinstance(value, Mapping)
-                        or (isinstance(value, list) and all(isinstance(v, Mapping) for v in value))):
-                    raise CaseError(name, f"expected a table or an array of tables, found {describe_value(value)}")
-                extra[name] = value
+        if "report" in data:
+            extra["report"] = self.report(data["report"])
+        from .case_design import read_design   # [design], [[design.size]], [catalogues.*]
+        design, catalogues, data = read_design(data, self.q, materials, self.member_list, self.source)
         return CaseSpec(title=title, units=self.units, materials=materials, sections=sections,
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
                         beam_reference=beam_reference, source=self.source, raw=data, extra=extra,
-                        studies=studies)
+                        design=design, catalogues=catalogues, studies=studies)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:
@@ -486,7 +544,8 @@ class _Reader:
             else:
                 unit_weight = self.optional(entry, "unit_weight", "unit_weight", key, "nonnegative", 0.0)
             alpha = self.optional(entry, "alpha", "thermal_expansion", key, default=0.0)
-            out[name] = Material(name=name, E=E, G=G, unit_weight=unit_weight, alpha=alpha)
+            fy = self.optional(entry, "fy", "stress", key, "positive")
+            out[name] = Material(name=name, E=E, G=G, unit_weight=unit_weight, alpha=alpha, fy=fy)
         return out
 
     def sections(self, value, materials) -> dict[str, Section]:
@@ -502,7 +561,7 @@ class _Reader:
                                 + _suggest(material, materials, listed=1000))
             area = self.quantity(_require(entry, "area", key, 'the metallic area, e.g. area = "1960 mm^2"'),
                                  "area", key_join(key, "area"), "positive")
-            out[name] = Section(
+            section = Section(
                 name=name, material=material, area=area,
                 weight=self.optional(entry, "weight", "force_per_length", key, "nonnegative"),
                 breaking_load=self.optional(entry, "breaking_load", "force", key, "positive"),
@@ -510,7 +569,18 @@ class _Reader:
                 Iy=self.optional(entry, "Iy", "second_moment", key, "positive"),
                 Iz=self.optional(entry, "Iz", "second_moment", key, "positive"),
                 J=self.optional(entry, "J", "second_moment", key, "positive"),
+                Wy=self.optional(entry, "Wy", "section_modulus", key, "positive"),
+                Wz=self.optional(entry, "Wz", "section_modulus", key, "positive"),
             )
+            # products the elements use must stay finite (1e300 GPa times 1e10 m^2 is not)
+            mat = materials[material]
+            for part, value in (("area", mat.E * area), ("area", mat.unit_weight * area),
+                                ("Iy", mat.E * (section.Iy or 0.0)), ("Iz", mat.E * (section.Iz or 0.0)),
+                                ("J", mat.G * (section.J or 0.0))):
+                if not math.isfinite(value):
+                    raise CaseError(key_join(key, part), f"with material \"{material}\" this gives a stiffness "
+                                    "or weight too large for a double (overflow); check the values and units")
+            out[name] = section
         return out
 
     # -- nodes ----------------------------------------------------------------
@@ -559,6 +629,10 @@ class _Reader:
             raise CaseError("member_table", f"expected an array of tables ([[member_table]]), "
                             f"found {describe_value(compact)}")
         groups = [self.member_group(entry, f"member_table[{g}]", sections) for g, entry in enumerate(compact)]
+        if not records and not any(len(group["ids"]) for group in groups):
+            raise CaseError("members", "the case has no members ([[members]] or [[member_table]]): "
+                            "there is nothing to analyse")
+        self.check_size(records, groups, len(nodes))
 
         # unique member ids over both forms
         first_key: dict[str, str] = {}
@@ -585,7 +659,14 @@ class _Reader:
                     raise CaseError(self.node_key(nid), f'duplicate node id "{nid}": it is also interior node {k} '
                                     f'of divided member "{rec["id"]}" ({rec["key"]}.divide)')
                 owners[nid] = (index, k)
-        known = nodes.keys() | owners.keys()
+        known = [*nodes, *owners]  # in case order, for suggestions
+        # nodes that some element joins: only these carry stiffness
+        self.joined: set[str] = set(owners)
+        for rec in records:
+            self.joined.update(rec["nodes"])
+        for group in groups:
+            self.joined.update(group["i"])
+            self.joined.update(group["j"])
         for rec in records:
             for end, name in enumerate(rec["nodes"]):
                 if name not in nodes and name not in owners:
@@ -598,6 +679,7 @@ class _Reader:
                 raise CaseError(f"{rec['key']}.nodes", f'both ends are node "{rec["nodes"][0]}"; '
                                 "a member needs two different nodes (zero length)")
 
+        self.check_coordinates(nodes, records)
         positions = _interior_positions(records, owners, nodes)
         self.index = {n: k for k, n in enumerate(nodes)}
         self.index.update((n, k) for k, n in enumerate(owners, start=len(nodes)))
@@ -615,6 +697,41 @@ class _Reader:
         for group in groups:
             members.extend(self.finish_group(group, coords, tiny, sections, materials))
         return members
+
+    def check_coordinates(self, nodes, records) -> None:
+        """Every coordinate within :data:`MAX_COORDINATE` of the origin (m)."""
+        declared = np.concatenate([np.array(list(nodes.values())[: self.long_count], dtype=float).reshape(-1, 3),
+                                   self.table_xyz])
+        far = np.flatnonzero(np.abs(declared).max(axis=1, initial=0.0) > MAX_COORDINATE)
+        if far.size:
+            name = list(nodes)[int(far[0])]
+            raise CaseError(self.node_key(name), _far_message(declared[far[0]]))
+        for rec in records:
+            if rec["interior"] is not None:
+                points = np.asarray(rec["interior"], dtype=float)
+                far = np.flatnonzero(np.abs(points).max(axis=1) > MAX_COORDINATE)
+                if far.size:
+                    raise CaseError(f"{rec['key']}.interior[{int(far[0])}]", _far_message(points[far[0]]))
+
+    def check_size(self, records, groups, declared: int) -> None:
+        """Reject a model bigger than :data:`MAX_DOFS` / :data:`MAX_ELEMENTS` before building it."""
+        interior = sum(rec["divide"] - 1 for rec in records)
+        elements = len(records) + interior + sum(len(group["ids"]) for group in groups)
+        nodes = declared + interior
+        beam_nodes = (sum(rec["divide"] + 1 for rec in records if rec["type"] == "beam")
+                      + sum(2 * len(group["ids"]) for group in groups if group["type"] == "beam"))
+        dofs = 3 * nodes + 3 * min(beam_nodes, nodes)
+        if dofs <= MAX_DOFS and elements <= MAX_ELEMENTS:
+            return
+        key = "members"
+        if records:
+            big = max(records, key=lambda rec: rec["divide"])
+            if big["divide"] - 1 > nodes // 2:  # one divide makes most of the model
+                key = f"{big['key']}.divide"
+        raise CaseError(key, f"the model would have {elements:,} elements and about {dofs:,} degrees of "
+                        f"freedom; cablefe accepts at most {MAX_ELEMENTS:,} elements and {MAX_DOFS:,} "
+                        "degrees of freedom, since each needs about 6 kB of memory while solving (more "
+                        "than one machine holds beyond that); check divide and the tables")
 
     def member_entry(self, entry, key, sections) -> dict:
         entry = _table(entry, key)
@@ -724,8 +841,10 @@ class _Reader:
                                 "beam members need Iy, Iz and J on their section")
         if pretension is None:
             return
-        pretension = np.asarray(pretension, dtype=float)
         EA = materials[section.material].E * section.area
+        if isinstance(pretension, float) and pretension >= 0.0 and 1.0 + pretension / EA > 0.0:
+            return  # the usual single member, without building arrays (long-form nets have 10^4 of them)
+        pretension = np.asarray(pretension, dtype=float)
         if mtype == "cable" or tension_only:
             bad = np.flatnonzero(pretension < 0)
             if bad.size:
@@ -782,8 +901,20 @@ class _Reader:
                 found = _show(code) if isinstance(code, str) else describe_value(code)
                 raise CaseError(key, f"unknown support code {found} "
                                 '(valid: any space-separated set of x y z rx ry rz, or "all", or "pin")')
-            out[name] = support_mask(code)
+            mask = support_mask(code)
+            rotations = [d for d, on in zip(DIRECTIONS[3:], mask[3:]) if on]
+            if rotations and code.split() != ["all"] and name not in self.rotation_nodes:
+                raise CaseError(key, f'node "{name}" has no rotations (it is joined to no beam), so '
+                                f'{" ".join(rotations)} {"restrains" if len(rotations) == 1 else "restrain"} nothing; '
+                                'use "x y z" (or "pin", "all")')
+            out[name] = mask
         return out
+
+    def joined_node(self, name: str, key: str, consequence: str) -> None:
+        """A node that carries a load, support movement or target must be joined to a member."""
+        if name not in self.joined:
+            raise CaseError(key, f'node "{name}" is joined to no member: {consequence}; '
+                            "join the node to a member or remove the entry")
 
     def node(self, name, key) -> str:
         """Check that a node id exists (declared or interior)."""
@@ -825,10 +956,17 @@ class _Reader:
             if entry["self_weight"] is not True:
                 raise CaseError(f"{key}.self_weight", f"expected true, found {describe_value(entry['self_weight'])} "
                                 "(leave the load out instead)")
-            return SelfWeight(case=case, key=key,
-                              factor=self.optional(entry, "factor", "dimensionless", key, default=1.0))
+            factor = self.optional(entry, "factor", "dimensionless", key, default=1.0)
+            if not factor > 0.0:
+                raise CaseError(f"{key}.factor", f"expected a self-weight factor > 0, found {_show(entry['factor'])} "
+                                "(weight acts downwards; leave the load out for none)")
+            return SelfWeight(case=case, key=key, factor=factor)
         if kind == "node":
             node = self.node(entry["node"], f"{key}.node")
+            self.joined_node(node, f"{key}.node",
+                             "a load there acts on no member and would vanish into a reaction"
+                             if "displacement" not in entry and "rotation" not in entry
+                             else "moving it would move no member")
             if "force" in entry or "moment" in entry:
                 force = self.q.vector(entry["force"], "force", f"{key}.force") if "force" in entry else (0.0, 0.0, 0.0)
                 moment = None
@@ -845,9 +983,12 @@ class _Reader:
                 return MemberLoad(case=case, members=patterns, key=key,
                                   per_length=self.q.vector(entry["per_length"], "force_per_length",
                                                            f"{key}.per_length"))
-            return TemperatureLoad(case=case, members=patterns, key=key,
-                                   delta_t=self.quantity(entry["temperature"], "temperature_difference",
-                                                         f"{key}.temperature"))
+            delta_t = self.quantity(entry["temperature"], "temperature_difference", f"{key}.temperature")
+            if not any(self.expands[self.member_list[k].section] for k in self.member_index.indices(patterns)):
+                raise CaseError(f"{key}.temperature", "no member it applies to has a thermal expansion "
+                                "coefficient (alpha of its material is 0 or missing), so the temperature "
+                                "change would do nothing; give the material an alpha")
+            return TemperatureLoad(case=case, members=patterns, key=key, delta_t=delta_t)
         return self.patch(entry, case, key)
 
     def displacement(self, entry, case, node, key) -> PrescribedDisplacement:
@@ -870,21 +1011,19 @@ class _Reader:
                     raise CaseError(f"{key}.{name}[{d}]", f'node "{node}" is not restrained in '
                                     f"{DIRECTIONS[offset + d]} ({support}); only restrained "
                                     "directions can be given a movement")
+            if name == "rotation" and node not in self.rotation_nodes and any(vector):
+                # reached with support "all" only: its rx ry rz stand for no DOF here
+                raise CaseError(f"{key}.rotation", f'node "{node}" has no rotations (it is joined to no beam); '
+                                "a prescribed rotation would do nothing")
             values.append(tuple(kept))
         displacement = values[0] if values[0] is not None else (None, None, None)
         return PrescribedDisplacement(case=case, node=node, displacement=displacement, rotation=values[1], key=key)
 
     def patterns(self, value, key) -> tuple[str, ...]:
         patterns = _names_list(value, key, "member ids or patterns", allow_single=True)
-        for k, pattern in enumerate(patterns):
-            if pattern in self.member_id_set:
-                continue
-            if _GLOB_CHARS.search(pattern):
-                rx = re.compile(fnmatch.translate(pattern))
-                if any(map(rx.match, self.member_ids)):
-                    continue
+        for k in self.member_index.unmatched(patterns):
             where = f"{key}[{k}]" if isinstance(value, list) else key
-            raise CaseError(where, f'"{pattern}" matches no member' + _suggest(pattern, self.member_ids))
+            raise CaseError(where, f'"{patterns[k]}" matches no member' + _suggest(patterns[k], self.member_ids))
         return patterns
 
     def joined_pairs(self) -> set[tuple[str, str]]:
@@ -954,6 +1093,9 @@ class _Reader:
                     raise CaseError(fkey, f'no load defines the load case "{case}"'
                                     + _suggest(case, sorted(cases), listed=1000))
                 factors[case] = self.quantity(factor, "dimensionless", fkey)
+                if factors[case] < 0.0 and case in self.weight_cases:
+                    raise CaseError(fkey, f'a negative factor on load case "{case}" would turn its self-weight '
+                                    "upwards; weight acts downwards (use a factor >= 0)")
             out.append(Combination(name=name, factors=factors, key=key))
         return out
 
@@ -986,6 +1128,7 @@ class _Reader:
             for name, coords in _table(table["targets"], "shape.targets", "a table node = { x, y, z }").items():
                 key = key_join("shape.targets", name)
                 self.node(name, key)
+                self.joined_node(name, key, "no member length can move it, so the target cannot be reached")
                 coords = _table(coords, key, "a table of x, y and/or z, e.g. { z = 0.0 }")
                 if not coords:
                     raise CaseError(key, "expected at least one of x, y, z")
@@ -1047,6 +1190,8 @@ class _Reader:
                 bad = [k for k, v in enumerate(vector) if not math.isfinite(v)]
                 if bad:
                     raise CaseError(f"{key}.{part}[{bad[0]}]", f"expected a finite number, found {vector[bad[0]]!r}")
+            if max(map(abs, position)) > MAX_COORDINATE:
+                raise CaseError(f"{key}.position", _far_message(position))
             out[name] = BeamReference(name, position, rotation, key)
         return out
 
@@ -1057,6 +1202,9 @@ class _Reader:
         solver = _string(table.get("solver", defaults.solver), "analysis.solver")
         if solver not in SOLVERS:
             raise CaseError("analysis.solver", f'unknown linear solver "{solver}" (known: {", ".join(SOLVERS)})')
+        problem = solver_unavailable(solver)
+        if problem:
+            raise CaseError("analysis.solver", problem)
         return AnalysisSettings(
             increments=_integer(table.get("increments", defaults.increments), "analysis.increments", 1),
             tolerance=self.optional(table, "tolerance", "dimensionless", "analysis", "positive",
@@ -1065,12 +1213,53 @@ class _Reader:
                                     "analysis.max_iterations", 1),
             solver=solver,
             max_cuts=_integer(table.get("max_cuts", defaults.max_cuts), "analysis.max_cuts", 0),
+            max_total_iterations=_integer(table.get("max_total_iterations", defaults.max_total_iterations),
+                                          "analysis.max_total_iterations", 1),
+            max_total_cuts=_integer(table.get("max_total_cuts", defaults.max_total_cuts),
+                                    "analysis.max_total_cuts", 0),
         )
+
+
+    def report(self, value) -> dict:
+        """``[report]``: ``deck`` node ids or patterns, each matching a node."""
+        table = _table(value, "report", 'a table, e.g. [report] deck = ["D*"]')
+        _check_keys(table, "report", REPORT_KEYS)
+        out = dict(table)
+        if "deck" in table:
+            deck = _names_list(table["deck"], "report.deck", "node ids or patterns", allow_single=True)
+            index = PatternIndex(list(self.index))
+            for k in index.unmatched(deck):
+                where = f"report.deck[{k}]" if isinstance(table["deck"], list) else "report.deck"
+                raise CaseError(where, f'"{deck[k]}" matches no node' + _suggest(deck[k], index.ids))
+            out["deck"] = list(deck)
+        return out
+
+
+def solver_unavailable(name: str) -> str:
+    """Why the linear solver ``name`` cannot be used here ('' when it can).
+
+    Only the optional PARDISO backend can be missing; asking for it by name
+    on a machine without it is an input error, found before any solving.
+    """
+    if name != "pardiso":
+        return ""
+    from ..solvers.linear import available_backends
+
+    if "pardiso" in available_backends():
+        return ""
+    return ('the "pardiso" solver needs the optional package pypardiso, which is not installed or '
+            "does not load here (pip install -e '.[fast]'); use \"auto\" or \"superlu\"")
 
 
 # ---------------------------------------------------------------------------
 # helpers of the reader
 # ---------------------------------------------------------------------------
+
+def _far_message(point) -> str:
+    shown = ", ".join(f"{v:.6g}" for v in point)
+    return (f"coordinates [{shown}] m lie beyond {MAX_COORDINATE:.0e} m from the origin, where a double "
+            "cannot resolve a structure's geometry; check the units and the value")
+
 
 @contextlib.contextmanager
 def _collector_paused():

@@ -7,13 +7,13 @@ not apply to the study's kind is rejected rather than ignored.
 """
 from __future__ import annotations
 
-import fnmatch
 import re
 from typing import Any, Mapping, Sequence
 
 import numpy as np
 
 from ..errors import CaseError
+from ..patterns import is_pattern, match_indices
 from ..spec import StudySpec
 from .units import describe_value
 
@@ -26,7 +26,6 @@ KIND_KEYS = {
     "tolerance": ("sigma", "range", "samples", "seed"),
 }
 ALL_KEYS = COMMON_KEYS + tuple(dict.fromkeys(k for keys in KIND_KEYS.values() for k in keys))
-_GLOB = re.compile(r"[*?\[]")
 _NAME = re.compile(r"[A-Za-z0-9_.-]+\Z")
 
 
@@ -159,8 +158,7 @@ def _length_or_ratio(reader, value, key) -> tuple[float, bool]:
 def _path(reader, value, key) -> tuple[tuple[str, ...], bool]:
     if isinstance(value, str):
         ids = reader.member_ids
-        if value in reader.member_id_set or (_GLOB.search(value) and
-                                             any(fnmatch.fnmatchcase(m, value) for m in ids)):
+        if value in reader.member_id_set or (is_pattern(value) and match_indices(value, ids)):
             return (value,), True
         raise CaseError(key, f'"{value}" matches no member (a lane is a list of node ids or one member '
                         'pattern like "D*")')
@@ -197,9 +195,7 @@ def _watch(reader, value, key) -> tuple[str, ...]:
             raise CaseError(where, f"expected a node or member id or pattern, found {describe_value(pattern)}")
         if pattern in reader.index or pattern in reader.member_id_set:
             continue
-        if _GLOB.search(pattern):
-            rx = re.compile(fnmatch.translate(pattern))
-            if any(map(rx.match, reader.member_ids)) or any(map(rx.match, nodes)):
-                continue
+        if is_pattern(pattern) and (match_indices(pattern, reader.member_ids) or match_indices(pattern, nodes)):
+            continue
         raise CaseError(where, f'"{pattern}" matches no node and no member')
     return tuple(value)

@@ -11,6 +11,7 @@ import meshio
 import numpy as np
 import orjson
 
+from ..assembly import cable_inputs
 from ..elements import catenary
 from ..results import Results, beam_section_forces, element_end_tensions, result_header
 from .atomic import atomic_path, write_text
@@ -72,7 +73,7 @@ def _text_tables(results: Results) -> dict | None:
         if results.deck_deflection(res.name) is not None:
             return None
         pos = res.state.positions
-        p, d = _rows(pos / L), _rows((pos - m.coordinates) / L)
+        p, d = _rows(m.to_site(pos) / L), _rows((pos - m.coordinates) / L)
         mf = results.member_forces(res.name)
         counts = [len(e) for e in mf.elements]
         ends = _rows(np.concatenate(mf.elements) / F) if sum(counts) else []
@@ -101,7 +102,7 @@ def _text_tables(results: Results) -> dict | None:
             nodes = b"{}"
         if not m.members:
             members = b"{}"
-        out["results"][res.name] = {**result_header(res), "nodes": _Text(nodes), "members": _Text(members)}
+        out["results"][res.name] = {**result_header(res, F, L), "nodes": _Text(nodes), "members": _Text(members)}
     return out
 
 
@@ -225,7 +226,8 @@ def safe_name(name: str) -> str:
 def result_mesh(results: Results, name: str, utilization: dict | None = None) -> meshio.Mesh:
     """The deformed structure of one result as a meshio line mesh.
 
-    Cables are drawn as polylines through points of their exact shape.
+    Cables are drawn as polylines through points of their exact shape, each
+    segment with the exact tension at its middle.
     Cell data: ``tension`` (force units), ``member`` (index), ``slack``; beams
     add ``moment_y`` and ``moment_z`` (mean of the end values); with
     ``utilization`` (member id -> value) also ``utilization``.
@@ -236,7 +238,7 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
     L, F = u.length_scale, u.force_scale
     pos = res.state.positions
     disp = pos - m.coordinates
-    points = [pos / L]
+    points = [m.to_site(pos) / L]   # site coordinates on output
     pdisp = [disp / L]
     cells, tension, member, slack, my, mz = [], [], [], [], [], []
     per = element_end_tensions(m, res.responses)
@@ -253,9 +255,9 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
         if f == "cable":
             r = res.responses[f]
             p = t.props
-            L0 = p["unstressed_length"] * (1.0 + lam * loads.strain[f])
+            L0, w = cable_inputs(t, loads, lam)
             xi, xj = pos[t.nodes[:, 0]], pos[t.nodes[:, 1]]
-            curve = catenary.shape_points(xi, xj, L0, p["EA"], lam * loads.weight[f], r.H, r.V, CURVE_POINTS)
+            curve = catenary.shape_points(xi, xj, L0, p["EA"], w, r.H, r.V, CURVE_POINTS)
             inner = curve[:, 1:-1]                                   # (n, c-2, 3)
             n, c = len(t), CURVE_POINTS
             s = np.linspace(0.0, 1.0, c)[1:-1]
@@ -263,14 +265,17 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
             idisp = di[:, None] * (1 - s)[None, :, None] + dj[:, None] * s[None, :, None]
             ids = next_point + np.arange(n * (c - 2)).reshape(n, c - 2)
             next_point += n * (c - 2)
-            points.append(inner.reshape(-1, 3) / L)
+            points.append(m.to_site(inner.reshape(-1, 3)) / L)
             pdisp.append(idisp.reshape(-1, 3) / L)
             chain = np.concatenate([t.nodes[:, :1], ids, t.nodes[:, 1:]], axis=1)   # (n, c)
             seg = np.stack([chain[:, :-1], chain[:, 1:]], axis=2).reshape(-1, 2)
             cells.append(seg)
-            # tension along each segment: linear between the element's end values
+            # tension of each drawn segment: the exact catenary's at the
+            # segment's middle (the points are at equal steps of unstressed
+            # arc length s), T(s) = sqrt(H^2 + (V - W + w s)^2) (Irvine 1981,
+            # Cable Structures, sec. 1.3); it is not linear along the cable
             mid = (np.arange(c - 1) + 0.5) / (c - 1)
-            tens = ends[:, :1] * (1 - mid) + ends[:, 1:] * mid
+            tens = catenary.tension_at(L0[:, None] * mid[None, :], r.H, r.V, L0, w)
             tension.append(tens.ravel() / F)
             member.append(np.repeat(t.member, c - 1))
             slack.append(np.repeat(eslack, c - 1))

@@ -105,6 +105,7 @@ _KIND_LIST = (
     Kind("density", "kg/m**3", None, None, "a density (mass per volume)", '"7850 kg/m^3"'),
     Kind("moment", "N*m", 1, 1, "a moment", '"25 kN*m"'),
     Kind("second_moment", "m**4", 4, 0, "a second moment of area", '"3.2e8 mm^4"'),
+    Kind("section_modulus", "m**3", 3, 0, "a section modulus", '"2.4e6 mm^3"'),
     Kind("temperature_difference", "K", None, None, "a temperature difference",
          '"-25 delta_degC" or "-25 K"'),
     Kind("thermal_expansion", "1/K", None, None, "a thermal expansion coefficient",

@@ -204,7 +204,8 @@ def shaped_case(spec: CaseSpec, model: Model, coordinates, member_length0, rotat
     ----------
     spec : the input case
     model : Model built from ``spec`` (fixes the node order)
-    coordinates : (nn, 3) node positions in model order, m, or None to keep
+    coordinates : (nn, 3) node positions in model order, m, in site
+        coordinates (``model.to_site`` of a state's positions), or None to keep
         the case's geometry.  Supported directions keep the case's
         coordinates (a prescribed support movement stays a load).
     member_length0 : (nm,) unstressed length per member, m (NaN: unchanged)
@@ -242,7 +243,7 @@ def shaped_case(spec: CaseSpec, model: Model, coordinates, member_length0, rotat
         held = np.zeros(X.shape, dtype=bool)
         g = model.dof[:, :3]
         held[g >= 0] = model.supported[g[g >= 0]]
-        X[held] = model.coordinates[held]
+        X[held] = model.site_coordinates[held]
         for name in spec.nodes:
             nodes[name] = tuple(float(v) for v in X[model.node_index[name]])
     members = []
@@ -268,7 +269,8 @@ def _beam_reference_table(spec: CaseSpec, model: Model, rotations: np.ndarray) -
     from ..elements.beam import logm_so3
     turning = np.flatnonzero(model.dof[:, 3] >= 0)
     theta = logm_so3(rotations[turning])
-    ref = model.reference_coordinates if model.reference_coordinates is not None else model.coordinates
+    ref = model.to_site(model.reference_coordinates if model.reference_coordinates is not None
+                        else model.coordinates)
     out = {}
     for k, n in enumerate(turning.tolist()):
         name = model.node_ids[n]
@@ -280,7 +282,8 @@ def _beam_reference_table(spec: CaseSpec, model: Model, rotations: np.ndarray) -
 
 def _settings(spec: CaseSpec) -> NewtonSettings:
     a = spec.analysis
-    return NewtonSettings(a.increments, min(a.tolerance, SHAPE_TOLERANCE), a.max_iterations, a.max_cuts)
+    return NewtonSettings(a.increments, min(a.tolerance, SHAPE_TOLERANCE), a.max_iterations, a.max_cuts,
+                          max_total_iterations=a.max_total_iterations, max_total_cuts=a.max_total_cuts)
 
 
 def _equilibrium(model: Model, factors, settings, linear_solver) -> StaticResult:
@@ -695,7 +698,9 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
     theta = np.ones(npar)
     model = model0
     result = _equilibrium(model, factors, settings, linear_solver)
-    X = result.state.positions
+    # positions and targets in site coordinates (the case's): the models built
+    # on the way may each have their own local origin
+    X = model.to_site(result.state.positions)
     best = np.inf
     stalled = shrinking = 0
 
@@ -762,7 +767,7 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
                 continue
             break
         theta, model, result = trial, trial_model, trial_result
-        X = result.state.positions
+        X = model.to_site(result.state.positions)
     # out of iterations: the loop only ends here when the targets were not met
     _, msg = _unmet_message(spec, reports(), tol, f"no convergence in {shape.max_iterations} iterations")
     raise ShapeError(msg, [r for r in reports() if abs(r.miss) > tol])
@@ -778,7 +783,7 @@ def _settle(spec, model0, X, L0, factors, settings, linear_solver, rounds=12):
     for _ in range(rounds):
         model = build_model(shaped_case(spec, model0, X, L0))
         result = _equilibrium(model, factors, settings, linear_solver)
-        X = result.state.positions
+        X = model.to_site(result.state.positions)
         if _movement(model, result) <= tol:
             break
     return model, result, X
@@ -870,7 +875,8 @@ def find_shape(spec: CaseSpec, linear_solver: str | None = None,
     if shape.method == "force-density":
         fd = force_density_shape(model0, shape, model0.combined_loads(factors))
         L0 = fd.member_length0
-        model, result, X = _settle(spec, model0, fd.coordinates, L0, factors, settings, linear_solver)
+        model, result, X = _settle(spec, model0, model0.to_site(fd.coordinates), L0, factors, settings,
+                                   linear_solver)
     elif shape.method == "target":
         model, result, X, L0, reports, iterations = _target_shape(spec, model0, factors, settings,
                                                                   linear_solver, progress)

@@ -52,6 +52,8 @@ class NewtonSettings:
     max_iterations: int = 30
     max_cuts: int = 12
     line_search: int = 6          # number of halvings tried along a Newton step
+    max_total_iterations: int = 400    # Newton iterations of the whole load path (a budget per result)
+    max_total_cuts: int = 40           # increment cuts of the whole load path (a budget per result)
 
 
 @dataclass(frozen=True)
@@ -65,7 +67,7 @@ class PathOutcome:
     load_factor : the last converged load factor
     iterations : total Newton iterations
     residual : relative residual of the last converged state
-    status : "converged" | "max-cuts" | "mechanism" | "non-finite"
+    status : "converged" | "max-cuts" | "mechanism" | "non-finite" | "budget"
     message : a sentence for the engineer
     history : relative residual of every iteration, in order
     increments : load factors of the converged increments
@@ -250,6 +252,7 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
     history: list[float] = []
     done: list[float] = []
     cuts = 0
+    all_cuts = 0
     last_ratio = 0.0
     warnings: list[str] = []
     while lam < 1.0:
@@ -277,13 +280,24 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
                 step *= 1.5
             continue
         cuts += 1
+        all_cuts += 1
         log.info("increment to %.4f failed (%s); cutting", target, result.failure)
+        # bounded work: a result that keeps cutting (or iterating) stops
+        # with what it reached instead of running for minutes
+        spent = (total_iterations >= settings.max_total_iterations or all_cuts > settings.max_total_cuts)
         # a step that no longer moves the load factor cannot succeed either
-        if cuts > settings.max_cuts or step * 0.5 < 1e-10:
+        if cuts > settings.max_cuts or step * 0.5 < 1e-10 or spent:
+            reason = getattr(problem, "failure_reason", "")
             if result.failure == "mechanism":
                 status, msg = "mechanism", str(result.mechanism)
+            elif spent:
+                status, msg = "budget", (f"no convergence beyond load factor {lam:.4f}: the work budget of "
+                                         f"{settings.max_total_iterations} iterations and "
+                                         f"{settings.max_total_cuts} increment cuts per result is spent "
+                                         f"({total_iterations} iterations, {all_cuts} cuts; [analysis] "
+                                         f"max_total_iterations and max_total_cuts set it)")
             elif result.failure == "non-finite":
-                status, msg = "non-finite", "the residual became non-finite"
+                status, msg = "non-finite", reason or "the residual became non-finite"
             else:
                 status, msg = "max-cuts", (f"no convergence beyond load factor {lam:.4f} after "
                                            f"{settings.max_cuts} increment cuts")

@@ -13,7 +13,8 @@ starts in equilibrium and never passes through an unloaded, slack state.
 from __future__ import annotations
 
 import logging
-from dataclasses import dataclass
+import math
+from dataclasses import dataclass, field
 from typing import Mapping
 
 import numpy as np
@@ -23,6 +24,16 @@ from ..errors import MechanismError
 from ..model import LoadVectors, Model
 from . import linear
 from .newton import NewtonSettings, PathOutcome, follow_load_path
+
+#: strain beyond which a member's strain is flagged as implausible (3 %:
+#: common practice, far beyond the elastic range of structural steel and
+#: of cable strand)
+PLAUSIBLE_STRAIN = 0.03
+#: displacement beyond which movements are flagged, as a fraction of the
+#: model's size (common practice: a structure in service moves far less)
+PLAUSIBLE_MOVEMENT = 0.1
+#: a node's free DOFs are counted as a mechanism when the tangent's
+#: diagonal there is below this fraction of the largest diagonal
 
 log = logging.getLogger(__name__)
 
@@ -56,6 +67,10 @@ class StaticProblem:
         owner[model.dof[model.dof >= 0]] = np.argwhere(model.dof >= 0)
         self._pres_owner = owner[self._pres]
         self._roundoff = None
+        #: why the last failed evaluation failed (read by the Newton driver's message)
+        self.failure_reason = ""
+        self._solved = False        # a linear solve since the last commit
+        self.last_increment_solved = False
 
     # -- the problem interface -------------------------------------------------
     def initial_state(self) -> State:
@@ -105,7 +120,27 @@ class StaticProblem:
         return self._roundoff
 
     def evaluate(self, state: State, lam: float, want_tangent: bool = True):
-        ev = self.assembler.evaluate(state, self.loads, lam, want_tangent)
+        """Residual, force scale and tangent; a failed element makes the residual NaN.
+
+        A catenary whose inner solve did not converge, or any element kernel
+        that refuses the state (non-finite positions, a vanishing length)
+        gives a NaN residual: the Newton driver counts that as a failed
+        step (the line search shortens it, the increment is cut), never as
+        a converged one.  ``failure_reason`` keeps the cause.
+        """
+        try:
+            with np.errstate(all="ignore"):
+                ev = self.assembler.evaluate(state, self.loads, lam, want_tangent)
+        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+            self.failure_reason = f"an element could not be evaluated at load factor {lam:.4f}: {exc}"
+            return np.full(len(self.free), np.nan), 1.0, None
+        cab = ev.responses.get("cable")
+        if cab is not None and not np.all(cab.converged):
+            bad = np.flatnonzero(~cab.converged)
+            mem = self.model.members[int(self.model.families["cable"].member[bad[0]])]
+            self.failure_reason = (f"the catenary equations of {bad.size} cable element(s) (first in member "
+                                   f'"{mem.id}") did not converge at load factor {lam:.4f}')
+            return np.full(len(self.free), np.nan), 1.0, None
         r = self.out_of_balance(ev, lam)[self.free]
         applied = lam * self.loads.nodal + (1.0 - lam) * self._r0
         ref = max(float(np.linalg.norm(applied[self.free])), float(np.linalg.norm(ev.magnitude[self.free])),
@@ -125,8 +160,13 @@ class StaticProblem:
 
     def commit(self, state: State) -> None:
         self.assembler.remember(self.assembler.element_responses(state, self.loads, 1.0, False))
+        self.last_increment_solved, self._solved = self._solved, False
+        self.failure_reason = ""
 
     def solve_linear(self, K, r):
+        self._solved = True
+        if K is None:   # the evaluation failed (see evaluate): a non-finite step fails too
+            return np.full(len(self.free), np.nan)
         if K.shape[0] == 0:
             return np.zeros(0)
         try:
@@ -149,6 +189,11 @@ class StaticResult:
     state : final (last converged) State
     reactions : (ndof,) support forces on the structure at restrained DOFs
     responses : family -> element response at the final state
+    equilibrium : the equilibrium check at the final state (see
+        :func:`equilibrium_check`), N
+    notes : warnings found after the solve (model warnings, a mechanism
+        hidden by a zero load, equilibrium, plausibility); ``warnings``
+        gives them after the driver's own
     """
 
     name: str
@@ -157,10 +202,208 @@ class StaticResult:
     state: State
     reactions: np.ndarray
     responses: Mapping[str, object]
+    equilibrium: Mapping[str, object] = field(default_factory=dict)
+    notes: tuple = ()
 
     @property
     def converged(self) -> bool:
         return self.outcome.converged
+
+    @property
+    def warnings(self) -> tuple:
+        """Every warning of the result: the driver's, then the later checks'."""
+        return tuple(self.outcome.warnings) + tuple(self.notes)
+
+
+def _length_failure(model: Model, loads: LoadVectors) -> str:
+    """A sentence naming the first member whose stress-free length reaches 0 on the way to
+    load factor 1 (thermal strain <= -1), or "".
+
+    The stress-free length is ``L0 (1 + lam strain)``: it vanishes at ``lam = -1/strain``.
+    """
+    worst = (math.inf, None, 0.0)
+    for f, t in model.families.items():
+        strain = loads.strain[f]
+        bad = np.flatnonzero(strain <= -1.0)
+        if bad.size:
+            k = bad[np.argmin(strain[bad])]
+            lam = -1.0 / float(strain[k])
+            if lam < worst[0]:
+                worst = (lam, int(t.member[k]), float(strain[k]))
+    lam, member, strain = worst
+    if member is None:
+        return ""
+    mem = model.members[member]
+    return (f'member "{mem.id}": the thermal strain {strain:.4g} (alpha x temperature change) makes its '
+            f"stress-free length <= 0 at load factor {lam:.4g}; check the temperature and alpha")
+
+
+def _unsolved(problem: StaticProblem, name: str, factors, status: str, message: str) -> StaticResult:
+    """A failed result at the starting state (load factor 0): nothing was solved."""
+    state = problem.initial_state()
+    outcome = PathOutcome(state, False, 0.0, 0, 0.0, status, message)   # the start balances at 0
+    ev = problem.assembler.evaluate(state, problem.loads, 0.0, want_tangent=False)
+    reactions = _reactions(problem, ev, 0.0)
+    return StaticResult(name, dict(factors), outcome, state, reactions, ev.responses,
+                        equilibrium_check(problem, ev, reactions, 0.0),
+                        tuple(problem.model.warnings))
+
+
+def _reactions(problem: StaticProblem, ev: Evaluation, lam: float) -> np.ndarray:
+    model = problem.model
+    reactions = problem.out_of_balance(ev, lam)
+    reactions[problem.free] = 0.0
+    if not model.supported.all():
+        reactions[~model.supported] = 0.0
+    return reactions
+
+
+def equilibrium_check(problem: StaticProblem, ev: Evaluation, reactions: np.ndarray, lam: float) -> dict:
+    """Equilibrium of the state ``ev`` at load factor ``lam``, N (SI).
+
+    Returns
+    -------
+    dict
+        ``largest_unbalanced_force`` (N) the largest out-of-balance force at
+        a free translational DOF, and ``unbalanced_at`` its ``[node,
+        direction]``; ``largest_unbalanced_moment`` (N m) where nodes
+        rotate; ``total_load`` (3,) N the sum of the applied loads (nodal,
+        member and self-weight loads, the catenaries' weight included) at
+        ``lam``; ``reactions_plus_loads`` (3,) N the sum of the support
+        reactions plus ``total_load``, zero for a structure in equilibrium
+        (statics of the free body of the whole structure); ``load_scale``
+        (N) the sum of the magnitudes of the applied forces, against which
+        the other values are judged.
+    """
+    model = problem.model
+    loads = problem.loads
+    nodal = lam * loads.nodal
+    trans = model.dof[:, :3]
+    has = trans >= 0
+    total = np.array([nodal[trans[:, d][has[:, d]]].sum() for d in range(3)])
+    scale = float(np.abs(nodal[trans[has]]).sum())
+    t = model.families.get("cable")
+    if t is not None and len(t):
+        # the catenary carries its weight inside the element: w0 L0 per element
+        W = lam * float(np.sum(loads.weight["cable"] * t.props["unstressed_length"]))
+        total[2] -= W
+        scale += abs(W)
+    support = np.array([reactions[trans[:, d][has[:, d]]].sum() for d in range(3)])
+    r = problem.out_of_balance(ev, lam)
+    free = np.zeros(model.ndof, dtype=bool)
+    free[problem.free] = True
+    tr = np.zeros(model.ndof, dtype=bool)
+    tr[trans[has]] = True
+    out = {"largest_unbalanced_force": 0.0, "unbalanced_at": None}
+    ft = np.flatnonzero(free & tr)
+    if ft.size:
+        k = int(ft[np.argmax(np.abs(r[ft]))])
+        out = {"largest_unbalanced_force": float(abs(r[k])), "unbalanced_at": list(model.describe_dof(k))}
+    fr = np.flatnonzero(free & ~tr)
+    if fr.size:
+        out["largest_unbalanced_moment"] = float(np.max(np.abs(r[fr])))
+    out.update({"total_load": total.tolist(), "reactions_plus_loads": (support + total).tolist(),
+                "load_scale": scale})
+    return out
+
+
+def _lost_load(problem: StaticProblem, ev: Evaluation, equilibrium: dict, reactions: np.ndarray,
+               lam: float) -> str:
+    """A warning when loads act where nothing carries them, or "".
+
+    Summed over the whole structure, the reactions plus the applied loads
+    equal minus the summed out-of-balance forces of the free DOFs (the
+    element forces cancel in pairs; a catenary's own pair sums to its
+    weight, counted in the loads).  What is left beyond that is load that
+    reaches no member and no support: a load on a restrained node that is
+    not a support.
+    """
+    model = problem.model
+    trans = model.dof[:, :3]
+    r = problem.out_of_balance(ev, lam)
+    free = np.zeros(model.ndof, dtype=bool)
+    free[problem.free] = True
+    left = np.array(equilibrium["reactions_plus_loads"], dtype=float)
+    for d in range(3):
+        g = trans[:, d][trans[:, d] >= 0]
+        left[d] += r[g][free[g]].sum()
+    lost = float(np.linalg.norm(left))
+    scale = equilibrium["load_scale"] + float(np.abs(reactions).sum())
+    if lost <= 1e-9 * scale + problem.roundoff:
+        return ""
+    return (f"equilibrium check: {lost:.4g} N of the applied load reaches no member and no support "
+            f"(applied loads {equilibrium['load_scale']:.4g} N in magnitude)")
+
+
+def _element_axial(model: Model, responses) -> dict:
+    """family -> (n,) largest |axial force| of each element, N (for plausibility checks)."""
+    out = {}
+    for f, r in responses.items():
+        if f == "cable":
+            out[f] = np.maximum(np.abs(r.max_tension), np.abs(r.min_tension))
+        elif f == "bar":
+            out[f] = np.abs(r.tension)
+        elif f == "beam":
+            out[f] = np.max(np.abs(r.local_end_forces[:, [0, 6]]), axis=1)
+    return out
+
+
+def _plausibility(model: Model, result_state: State, responses) -> list[str]:
+    """Warnings for numbers an engineer would not expect (not errors)."""
+    notes = []
+    axial = _element_axial(model, responses)
+    broken, strained = [], []
+    for f, N in axial.items():
+        t = model.families[f]
+        p = t.props
+        EA = p["EA"] if "EA" in p else p["E"] * p["A"]
+        brk = p["breaking_load"]
+        over = np.flatnonzero(np.isfinite(brk) & (N > brk))
+        broken += [(float(N[k] / brk[k]), int(t.member[k])) for k in over]
+        strain = N / EA
+        big = np.flatnonzero(strain > PLAUSIBLE_STRAIN)
+        strained += [(float(strain[k]), int(t.member[k])) for k in big]
+
+    def names(pairs):
+        best = {}
+        for v, m in pairs:
+            best[m] = max(v, best.get(m, 0.0))
+        order = sorted(best, key=best.get, reverse=True)
+        shown = ", ".join(f"{model.members[m].id} ({best[m]:.3g})" for m in order[:5])
+        return shown + (f" and {len(order) - 5} more" if len(order) > 5 else "")
+    if broken:
+        notes.append(f"tension beyond the breaking load (ratio in brackets): {names(broken)}")
+    if strained:
+        notes.append(f"axial strain beyond {PLAUSIBLE_STRAIN:.0%} (strain in brackets): {names(strained)}; "
+                     "far beyond the elastic range: check sections, units and loads")
+    size = model.size
+    if size > 0.0 and len(model.coordinates):
+        move = np.linalg.norm(result_state.positions - model.coordinates, axis=1)
+        k = int(np.argmax(move))
+        if move[k] > PLAUSIBLE_MOVEMENT * size:
+            notes.append(f"node {model.node_ids[k]} moves {move[k]:.4g} m, more than "
+                         f"{PLAUSIBLE_MOVEMENT:.0%} of the model's size ({size:.4g} m): check supports, "
+                         "sections and loads")
+    return notes
+
+
+def _hidden_mechanism(problem: StaticProblem, state: State, lam: float) -> str:
+    """A warning when the converged state is a mechanism the driver never saw, or "".
+
+    Newton converges without a linear solve when the start is already in
+    equilibrium (a zero load): a slack net under no load then "converges"
+    although its free nodes can move without resistance.  The tangent of
+    such a state is factorised once here.
+    """
+    _, _, K = problem.evaluate(state, lam, True)
+    if K is None or K.shape[0] == 0:
+        return ""
+    try:
+        problem.solve_linear(K, np.zeros(K.shape[0]))
+    except MechanismError as exc:
+        return (f"the converged state is a mechanism ({exc}); it is in equilibrium only because the "
+                "load on it is zero (or balanced): any load would move it without resistance")
+    return ""
 
 
 def solve_combination(model: Model, name: str, factors: Mapping[str, float],
@@ -172,17 +415,38 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
     ``assembler`` and a :class:`~cablefe.solvers.linear.LinearSolver` object
     as ``linear_solver`` may be passed to share their per-pattern work
     between the combinations of one model (see :func:`cablefe.analysis.solve`).
+
+    A result that cannot be solved is returned marked not converged (its
+    ``outcome.status`` says why), never raised: a stress-free length that
+    vanishes on the way (status ``"invalid-length"``), a failed element
+    evaluation, a mechanism, a spent work budget.
     """
     a = model.spec.analysis
-    settings = settings or NewtonSettings(a.increments, a.tolerance, a.max_iterations, a.max_cuts)
+    settings = settings or NewtonSettings(a.increments, a.tolerance, a.max_iterations, a.max_cuts,
+                                          max_total_iterations=a.max_total_iterations,
+                                          max_total_cuts=a.max_total_cuts)
     loads = model.combined_loads(factors)
     problem = StaticProblem(model, loads, assembler=assembler, linear_solver=linear_solver or a.solver)
+    failure = _length_failure(model, loads)
+    if failure:
+        log.warning("%s: %s", name, failure)
+        return _unsolved(problem, name, factors, "invalid-length", failure)
     outcome = follow_load_path(problem, settings, progress)
     lam = outcome.load_factor
     ev = problem.assembler.evaluate(outcome.state, loads, lam, want_tangent=False)
-    reactions = problem.out_of_balance(ev, lam)
-    reactions[problem.free] = 0.0
-    if not model.supported.all():
-        reactions[~model.supported] = 0.0
+    reactions = _reactions(problem, ev, lam)
+    equilibrium = equilibrium_check(problem, ev, reactions, lam)
+    notes = list(model.warnings)
+    if outcome.converged and not problem.last_increment_solved:
+        hidden = _hidden_mechanism(problem, outcome.state, lam)
+        if hidden:
+            notes.append(hidden)
+    lost = _lost_load(problem, ev, equilibrium, reactions, lam)
+    if lost:
+        notes.append(lost)
+    notes += _plausibility(model, outcome.state, ev.responses)
+    for w in notes[len(model.warnings):]:     # the model's own are the model's to report
+        log.warning("%s: %s", name, w)
     log.info("%s: %s", name, outcome.message)
-    return StaticResult(name, dict(factors), outcome, outcome.state, reactions, ev.responses)
+    return StaticResult(name, dict(factors), outcome, outcome.state, reactions, ev.responses,
+                        equilibrium, tuple(notes))

@@ -82,6 +82,10 @@ class FromBaseProblem(StaticProblem):
         self._previous = None
         self._steps = 0
         self._at = None
+        # the attributes StaticProblem's methods and the driver read
+        self.failure_reason = ""
+        self._solved = False
+        self.last_increment_solved = False
 
     def _loads_at(self, lam: float) -> LoadVectors:
         return self.base + self.added.scaled(lam)
@@ -93,10 +97,25 @@ class FromBaseProblem(StaticProblem):
         return ev.internal - self.base.nodal - lam * self.added.nodal - (1.0 - lam) * self._r0
 
     def evaluate(self, state: State, lam: float, want_tangent: bool = True):
-        if want_tangent and self._base_factor is not None:
-            want_tangent = False        # built in solve_linear only if needed
-            self._at = (state, lam)
-        ev = self.assembler.evaluate(state, self._loads_at(lam), 1.0, want_tangent)
+        """As :meth:`StaticProblem.evaluate` (a failed element gives a NaN
+        residual and ``failure_reason``), at base + λ addition; while the
+        base factorization serves, the tangent is only built when needed."""
+        build = want_tangent and self._base_factor is None
+        self._at = None
+        try:
+            with np.errstate(all="ignore"):
+                ev = self.assembler.evaluate(state, self._loads_at(lam), 1.0, build)
+        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+            self.failure_reason = f"an element could not be evaluated at load factor {lam:.4f}: {exc}"
+            return np.full(len(self.free), np.nan), 1.0, None
+        cab = ev.responses.get("cable")
+        if cab is not None and not np.all(cab.converged):
+            bad = np.flatnonzero(~cab.converged)
+            mem = self.model.members[int(self.model.families["cable"].member[bad[0]])]
+            self.failure_reason = (f"the catenary equations of {bad.size} cable element(s) (first in member "
+                                   f'"{mem.id}") did not converge at load factor {lam:.4f}')
+            return np.full(len(self.free), np.nan), 1.0, None
+        self._at = (state, lam)
         r = self.out_of_balance(ev, lam)[self.free]
         applied = self.base.nodal + lam * self.added.nodal + (1.0 - lam) * self._r0
         ref = max(float(np.linalg.norm(applied[self.free])), float(np.linalg.norm(ev.magnitude[self.free])),
@@ -104,11 +123,14 @@ class FromBaseProblem(StaticProblem):
         return r, ref, ev.tangent
 
     def solve_linear(self, K, r):
+        if K is None and self._at is None:      # the evaluation failed: so does the step
+            return super().solve_linear(None, r)
         if self._base_factor is not None:
             size = float(np.linalg.norm(r))
             if self._steps < MODIFIED_STEPS and (self._previous is None or size < CONTRACTION * self._previous):
                 self._previous = size
                 self._steps += 1
+                self._solved = True
                 return self._base_factor.solve(r)
             self._base_factor = None     # slow: full Newton from here on
         if K is None:

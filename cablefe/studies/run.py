@@ -16,7 +16,6 @@ The kinds (contract v2, "Studies"):
 """
 from __future__ import annotations
 
-import fnmatch
 import logging
 import uuid
 from dataclasses import dataclass, field
@@ -25,6 +24,7 @@ import numpy as np
 
 from ..errors import CaseError
 from ..model import Model
+from ..patterns import match_indices
 from ..results import Results
 from ..solvers.newton import NewtonSettings
 from .base import STUDY_INCREMENTS, StudyContext, TaskResult, Watch, member_extremes, session_for
@@ -83,7 +83,7 @@ class StudyOutcome:
 def _watch(model: Model, patterns) -> Watch:
     if patterns is None:
         return Watch(np.arange(len(model.node_ids)), np.arange(len(model.members)))
-    nodes = [k for k, n in enumerate(model.node_ids) if any(p == n or fnmatch.fnmatchcase(n, p) for p in patterns)]
+    nodes = match_indices(patterns, model.node_ids)
     return Watch(np.asarray(nodes, dtype=np.int64), np.asarray(model.member_ids_matching(patterns), dtype=np.int64))
 
 
@@ -101,7 +101,8 @@ def make_context(results: Results, study, solver: str | None = None) -> StudyCon
     if not res.converged:
         raise CaseError(f"{study.key}.base", f'the base result "{base}" did not converge: {res.outcome.message}')
     a = model.spec.analysis
-    newton = NewtonSettings(STUDY_INCREMENTS, a.tolerance, a.max_iterations, a.max_cuts)
+    newton = NewtonSettings(STUDY_INCREMENTS, a.tolerance, a.max_iterations, a.max_cuts,
+                            max_total_iterations=a.max_total_iterations, max_total_cuts=a.max_total_cuts)
     return StudyContext(uuid.uuid4().hex, model.spec, dict(res.factors), res.state.positions.copy(),
                         None if res.state.rotations is None else res.state.rotations.copy(),
                         _watch(model, study.watch), study, solver or a.solver, newton)

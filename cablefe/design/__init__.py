@@ -1,0 +1,1 @@
+"""Design checks (utilization per member and result) and catalogue sizing."""

@@ -1,0 +1,1 @@
+"""What ``cablefe run`` shows a person: plots, the HTML report and the terminal summary."""
