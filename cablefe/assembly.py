@@ -218,3 +218,69 @@ class Assembler:
         """Per-element (force, tangent) arrays by family, for tests."""
         return {f: (r.force, r.tangent) for f, r in
                 self.element_responses(state, loads, lam, True).items()}
+
+
+# -- mass -------------------------------------------------------------------------
+
+def assemble_mass(model: Model, lumped: bool = False, extra_per_length: Mapping[str, np.ndarray] | None = None,
+                  node_mass: np.ndarray | None = None, beam_frames: np.ndarray | None = None,
+                  gravity: float = 9.80665) -> sp.csr_matrix:
+    """Mass matrix over all DOFs, (ndof, ndof) in kg (kg m, kg m² on rotations).
+
+    Every element's own mass is its weight per unstressed length over
+    ``gravity`` (the model's weights are forces), spread over its
+    unstressed length: bars and cables consistent or ``lumped``, beams
+    always consistent with the rotary and torsional inertia of the section
+    (``rho I = (w/g) I / A``, polar ``Iy + Iz``).
+
+    Parameters
+    ----------
+    model : Model
+    lumped : bool
+        Lumped instead of consistent matrices for bars and cables.
+    extra_per_length : family -> (n,) added mass per unstressed length, kg/m
+        (translational only: finishes, a share of the crowd)
+    node_mass : (nn,) added mass on the translations of each node, kg
+    beam_frames : (n_beam, 3, 3) frames of the beam elements (the current
+        corotated frames about a loaded state); default their initial frames
+    gravity : m/s², standard gravity
+
+    Returns
+    -------
+    scipy.sparse.csr_matrix
+    """
+    from .elements import beam, catenary
+    ndof = model.ndof
+    rows, cols, vals = [], [], []
+    for f, t in model.families.items():
+        if not len(t):
+            continue
+        p = t.props
+        L0 = p["unstressed_length"]
+        own = p["weight"] / gravity
+        add = np.zeros(len(t)) if extra_per_length is None else extra_per_length.get(f, np.zeros(len(t)))
+        if f == "beam":
+            frames = p["frame0"] if beam_frames is None else beam_frames
+            # density times area is the own mass per length; rho I follows from it
+            rho = own / p["A"]
+            Me = beam.mass_matrix(frames, p["length"], own + add, rho * (p["Iy"] + p["Iz"]),
+                                  rho * p["Iy"], rho * p["Iz"])
+        elif f == "cable":
+            Me = catenary.mass_matrix(L0, own + add, lumped)
+        else:
+            Me = bar.mass_matrix(L0, own + add, lumped)
+        k = t.dofs.shape[1]
+        rows.append(np.repeat(t.dofs, k, axis=1).ravel())
+        cols.append(np.tile(t.dofs, (1, k)).ravel())
+        vals.append(Me.ravel())
+    if node_mass is not None and np.any(node_mass):
+        g = model.dof[:, :3]
+        rows.append(g.ravel())
+        cols.append(g.ravel())
+        vals.append(np.repeat(np.asarray(node_mass, dtype=float), 3))
+    if not rows:
+        return sp.csr_matrix((ndof, ndof))
+    r = np.concatenate(rows)
+    c = np.concatenate(cols)
+    v = np.concatenate(vals)
+    return sp.coo_matrix((v, (r, c)), shape=(ndof, ndof)).tocsr()

@@ -79,6 +79,14 @@ def _parser() -> argparse.ArgumentParser:
     s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
                    help="sparse linear solver backend (default: [analysis] solver or auto)")
     _study_options(s)
+    text = "natural modes about a converged result (and the pedestrian check when configured): [modes]"
+    s = sub.add_parser("modes", help=text, description=text, epilog="examples:\n  cablefe modes "
+                       "cases/generated-suspension.toml -o out/modes",
+                       formatter_class=argparse.RawDescriptionHelpFormatter)
+    s.add_argument("case", help="case file (TOML) with a [modes] table")
+    s.add_argument("-o", "--output", required=True, help="output folder")
+    s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
+                   help="sparse linear solver backend (default: [analysis] solver or auto)")
     from .generate.command import add_parser as add_new_parser
     add_new_parser(sub, _Parser)
     return p
@@ -214,6 +222,9 @@ def cmd_solve(args, shape_first=False) -> int:
         done = run_studies(results, out, workers=args.workers, scheduler=args.scheduler, solver=args.solver,
                            progress_stream=sys.stderr if live else None)
         written += [add_to_results(results, out, done)] + done.written
+    modes_status = 0
+    if shape_first and model.spec.modes is not None:   # after solve (and studies), before design and report
+        modes_status = cmd_modes(args, model, results)
     if shape_first:  # `run` adds design checks (and sizing), plots and a report
         from .design.stage import design_stage
         from .report.html import write_report
@@ -240,6 +251,30 @@ def cmd_solve(args, shape_first=False) -> int:
         bad = [r.name for r in results.items if not r.converged]
         print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json)", file=sys.stderr)
         return 1
+    if modes_status:
+        return modes_status
+    return 0
+
+
+def cmd_modes(args, model=None, results=None) -> int:
+    """Modes alone (``cablefe modes``) or as a step of ``run`` (model and results given)."""
+    from . import load_model
+    from .io.modes_io import frequency_table
+    from .vibration import ModesError, NotConverged, run_modes
+    alone = model is None
+    model = model or load_model(args.case)
+    if alone and model.spec.modes is None:
+        from .errors import CaseError
+        raise CaseError("modes", "the case has no [modes] table").with_file(str(args.case))
+    try:
+        found, written = run_modes(model, Path(args.output), results, args.solver)
+    except ModesError as exc:
+        print(f"cablefe: {args.case}: modes: {exc}", file=sys.stderr)
+        return 1 if isinstance(exc, NotConverged) else 2
+    print("\n".join(frequency_table(found)))
+    print(f"wrote {', '.join(str(p) for p in written)}")
+    if alone:
+        print("caution: " + CAUTION)
     return 0
 
 
@@ -316,6 +351,8 @@ def main(argv=None) -> int:
             return cmd_solve(args)
         if args.command == "shape":
             return cmd_shape(args)
+        if args.command == "modes":
+            return cmd_modes(args)
         if args.command == "run":
             return cmd_solve(args, shape_first=True)
         if args.command == "study":

@@ -187,6 +187,53 @@ class AnalysisSettings:
     max_cuts: int = 12                # extension: how often an increment may be halved in a row
     max_total_iterations: int = 400   # extension: Newton iterations per result (work budget)
     max_total_cuts: int = 40          # extension: increment cuts per result (work budget)
+    control: str = "load"             # "load" | "arc-length": how the path to λ = 1 is followed
+    track: tuple[str, ...] = ()       # node ids whose displacements every converged step records
+
+
+@dataclass(frozen=True)
+class AddedMass:
+    """Mass beyond the members' own weight (``[modes] masses``).
+
+    Either ``node`` with ``mass`` (kg, on its three translations) or
+    ``members`` (patterns) with ``per_length`` (kg per m of each element's
+    unstressed length).
+    """
+
+    node: str | None = None
+    mass: float = 0.0                 # kg
+    members: tuple[str, ...] = ()
+    per_length: float = 0.0           # kg/m
+    key: str = ""
+
+
+@dataclass(frozen=True)
+class PedestrianSpec:
+    """``[modes.pedestrians]``: comfort check of a deck under a pedestrian stream.
+
+    ``constants`` holds the guideline constants the case overrides (names of
+    :data:`cablefe.dynamics.pedestrians.CONSTANTS`, SI values); the rest
+    come from that table.
+    """
+
+    lane: tuple[str, ...]             # member patterns walked on
+    width: float                      # m, walkway width carried by each lane line
+    density: float                    # pedestrians per m^2
+    damping: float                    # damping ratio
+    constants: Mapping[str, Any] = field(default_factory=dict)
+    key: str = "modes.pedestrians"
+
+
+@dataclass(frozen=True)
+class ModesSpec:
+    """``[modes]``: natural modes about a converged state."""
+
+    about: str | None = None          # result name; None: the first result
+    count: int = 12
+    masses: tuple[AddedMass, ...] = ()
+    mass_matrix: str = "consistent"   # bars and cables: "consistent" | "lumped"
+    pedestrians: PedestrianSpec | None = None
+    key: str = "modes"
 
 
 @dataclass(frozen=True)
@@ -238,6 +285,7 @@ class CaseSpec:
     raw: Mapping[str, Any] | None = None  # the parsed TOML, kept for faithful rewriting
     extra: Mapping[str, Any] = field(default_factory=dict)  # tables for later studies
     studies: tuple[StudySpec, ...] = ()        # ``[[studies]]``
+    modes: ModesSpec | None = None     # ``[modes]``
     # ``[design]`` with its ``[[design.size]]`` groups, and ``[catalogues.*]``
     design: "DesignSpec | None" = None
     catalogues: Mapping[str, "Catalogue"] = field(default_factory=dict)

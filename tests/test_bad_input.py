@@ -124,7 +124,7 @@ CORPUS = [
     ("design-unknown-key", CABLE + "\n[design]\nfactor_of_everything = 1.5\n", "design.factor_of_everything", ()),
     ("studies-not-an-array", CABLE + '\n[studies]\nkind = "x"\n', "studies", ()),
     ("studies-unknown-kind", CABLE + '\n[[studies]]\nname = "a"\nkind = "x"\n', "studies[0].kind", ()),
-    ("modes-not-implemented", CABLE + "\n[modes]\ncount = 5\n", "modes", ()),
+    ("modes-count-zero", CABLE + "\n[modes]\ncount = 0\n", "modes.count", ()),
     ("report-unknown-key", CABLE + '\n[report]\ndeck = ["C1.*"]\nplots = true\n', "report.plots", ()),
     ("report-not-a-table", 'report = "deck"\n' + CABLE, "report", ()),
     ("report-deck-matches-nothing", CABLE + '\n[report]\ndeck = ["C1.*", "Q*"]\n', "report.deck[1]", ()),

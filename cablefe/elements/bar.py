@@ -79,3 +79,28 @@ def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True
         K[:, :3, 3:] = -k
         K[:, 3:, :3] = -k
     return BarResponse(force=f, tangent=K, tension=N, length=L, slack=slack)
+
+
+def mass_matrix(length, mass_per_length, lumped=False) -> np.ndarray:
+    """Mass matrices of straight two-node elements with three DOFs per node.
+
+    Translational inertia only (a bar or cable has no rotational DOFs).  The
+    consistent matrix interpolates the motion linearly between the ends,
+    ``m L / 6 [[2 I, I], [I, 2 I]]``; the lumped one puts ``m L / 2`` on
+    each end.  Both carry the element's whole mass ``m L`` in every
+    direction of rigid translation.
+
+    Parameters
+    ----------
+    length : (n,) element length the mass is spread over, m
+    mass_per_length : (n,) mass per unit of that length, kg/m
+    lumped : bool
+        Diagonal (lumped) instead of consistent matrices.
+
+    Returns
+    -------
+    (n, 6, 6) mass matrices in global axes, kg, DOFs ``[x_i, x_j]``
+    """
+    total = np.asarray(mass_per_length, dtype=float) * np.asarray(length, dtype=float)
+    pattern = np.diag([0.5, 0.5]) if lumped else np.array([[2.0, 1.0], [1.0, 2.0]]) / 6.0
+    return total[:, None, None] * np.kron(pattern, np.eye(3))[None]

@@ -834,3 +834,17 @@ def stretched_length(H, V, unstressed_length, weight, EA):
     if np.any(H < 0.0):
         raise ValueError(f"H must be >= 0 N, got {H[H < 0.0][:3]}")
     return L0 + L0 * _mean_tension(H, V, weight * L0) / EA
+
+
+def mass_matrix(length, mass_per_length, lumped=False) -> np.ndarray:
+    """Mass matrices of cable elements, (n, 6, 6) kg; see :func:`cablefe.elements.bar.mass_matrix`.
+
+    The cable's mass is spread along its chord, linearly between the ends
+    (or lumped at them): the exact catenary tangent condenses the cable's
+    interior statically, so the element has no inertia of its own between
+    its nodes.  Its own modes between the nodes (the sagging string's
+    modes) are therefore only found by dividing the cable (``divide``);
+    see the modes documentation for how finely.
+    """
+    from .bar import mass_matrix as straight
+    return straight(length, mass_per_length, lumped)

@@ -375,3 +375,25 @@ def parabola(x: np.ndarray, span: float, z_west: float, z_east: float, sag: floa
     Cable Structures, ch. 2).
     """
     return z_west + (z_east - z_west) * x / span - 4.0 * sag * x * (span - x) / span**2
+
+
+def modes(case: CaseText, layout: dict, values: Mapping[str, Any]) -> None:
+    """``[modes]`` about the permanent state with the pedestrian check of the walkway."""
+    planes = len(layout["nodes"])
+    g = 9.80665
+    case.table("modes", "Natural modes about the permanent state (`cablefe modes`, and `cablefe run` "
+               "after solving): the members' own mass plus the superimposed deck load as mass. "
+               "Add a share of the crowd's mass here if the design situation asks for it.")
+    case.kv("about", "permanent")
+    case.kv("count", 12)
+    case.kv("masses", f'[{{ members = "D*", per_length = '
+                      f'"{num(values["superimposed"] / planes / g, 6)} kg/m" }}]', raw=True)
+    case.table("modes.pedestrians", "Comfort of the walkway under a stream of pedestrians (a first "
+               "estimate by the JRC-ECCS footbridge guideline's method; every constant of the method "
+               "may be set here, see the docs). Density and damping are placeholders for the designer: "
+               "the density of the design situation, the damping of the built structure.")
+    case.kv("lane", "D*", "the deck girders walked on")
+    case.kv("width", num(values["width"] / planes, 6), f"walkway width carried by each of the "
+            f"{planes} girder line(s), m", raw=True)
+    case.kv("density", 0.5, "pedestrians per m^2 (placeholder)")
+    case.kv("damping", 0.005, "damping ratio (placeholder)")

@@ -134,6 +134,7 @@ def build(values, command: str) -> str:
     else:
         for k, ids in enumerate(groups):
             case.adjust(ids, "The hangers of one deck node are scaled together." if k == 0 else None)
+    c.modes(case, layout, values)
     c.analysis(case)
     return case.text()
 

@@ -150,6 +150,7 @@ def build(values, command: str) -> str:
         groups.append(ids)
     for ids in groups:
         case.adjust(ids)
+    c.modes(case, layout, values)
     c.analysis(case)
     return case.text()
 

@@ -197,6 +197,7 @@ def build(values, command: str) -> str:
     if backstays:
         case.table("shape.adjust", "Each backstay's length is its own unknown.", array=True)
         case.kv("members", "BS*")
+    c.modes(case, layout, values)
     c.analysis(case)
     return case.text()
 

@@ -58,16 +58,22 @@ Extensions to the interface page
 ``[analysis]``: ``solver`` (one of :data:`SOLVERS`), ``max_cuts``
     (how often an increment may be halved in a row), ``max_total_iterations``
     and ``max_total_cuts`` (the work budget of one result: Newton iterations
-    and increment cuts over its whole load path).
+    and increment cuts over its whole load path); ``control`` (one of
+    :data:`CONTROLS`: load control, or arc length through limit points) and
+    ``track`` (node ids whose displacements each converged step records in
+    the result's ``path``).
 ``[design]``, ``[catalogues]``, fy on materials, Wy and Wz on sections
     Design checks and sizing: read by :mod:`cablefe.io.case_design`.
 ``[report]``
     ``deck = ["D*"]``: node ids or patterns whose largest vertical
     deflection is reported; validated here (unknown keys, patterns that
     match no node) and kept in ``CaseSpec.extra["report"]``.
-``[studies]``, ``[modes]``
-    Not implemented in this version: rejected with a message saying so
-    (:data:`NOT_IMPLEMENTED`), never accepted and ignored.
+``[[studies]]``
+    Live-load studies: read by :mod:`cablefe.io.case_studies`.
+``[modes]``
+    Natural modes and the pedestrian check: read by :mod:`cablefe.io.case_modes`.
+A table whose feature this version does not have is listed in
+:data:`NOT_IMPLEMENTED` (none now) and rejected with a message saying so.
 
 Size limit: a case whose model would have more than :data:`MAX_DOFS`
 degrees of freedom or :data:`MAX_ELEMENTS` elements (``divide`` included) is
@@ -152,7 +158,7 @@ __all__ = [
 
 TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
                   "loads", "combinations", "shape", "analysis", "node_table", "member_table",
-                  "beam_reference", "design", "catalogues", "studies")
+                  "beam_reference", "design", "catalogues", "studies", "modes")
 #: Top-level tables validated here and kept in ``CaseSpec.extra`` for the
 #: features that read them.
 PASS_THROUGH_KEYS = ("report",)
@@ -160,7 +166,6 @@ PASS_THROUGH_KEYS = ("report",)
 #: case that uses one is rejected (never read and ignored).  A feature that
 #: lands removes its entry here (and validates its table in the reader).
 NOT_IMPLEMENTED: Mapping[str, str] = {
-    "modes": "natural frequencies and mode shapes",
 }
 REPORT_KEYS = ("deck",)
 MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha", "fy")
@@ -177,7 +182,8 @@ SHAPE_KEYS = ("method", "permanent", "tolerance", "targets", "adjust", "force_de
 ADJUST_KEYS = ("members", "together")
 BEAM_REFERENCE_KEYS = ("position", "rotation")
 ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts",
-                 "max_total_iterations", "max_total_cuts")
+                 "max_total_iterations", "max_total_cuts", "control", "track")
+CONTROLS = ("load", "arc-length")
 SHAPE_METHODS = ("target", "force-density")
 SOLVERS = ("auto", "superlu", "splu-default", "pardiso")
 
@@ -510,11 +516,15 @@ class _Reader:
         shape = self.shape(data["shape"], cases) if "shape" in data else None
         analysis = self.analysis(data.get("analysis", {}))
         beam_reference = self.beam_reference(data.get("beam_reference", {}))
+        names = [c.name for c in combinations] or list(dict.fromkeys(load.case for load in loads))
         studies = ()
-        if "studies" in data:
+        if "studies" in data:   # validated and used (cablefe.io.case_studies)
             from .case_studies import read_studies
-            studies = read_studies(self, data["studies"],
-                                   [c.name for c in combinations] or list(dict.fromkeys(l.case for l in loads)))
+            studies = read_studies(self, data["studies"], names)
+        modes = None
+        if "modes" in data:   # validated and used (cablefe.io.case_modes)
+            from .case_modes import read_modes
+            modes = read_modes(self, data["modes"], names)
         extra = {}
         if "report" in data:
             extra["report"] = self.report(data["report"])
@@ -524,7 +534,7 @@ class _Reader:
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
                         beam_reference=beam_reference, source=self.source, raw=data, extra=extra,
-                        design=design, catalogues=catalogues, studies=studies)
+                        design=design, catalogues=catalogues, studies=studies, modes=modes)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:
@@ -1217,7 +1227,25 @@ class _Reader:
                                           "analysis.max_total_iterations", 1),
             max_total_cuts=_integer(table.get("max_total_cuts", defaults.max_total_cuts),
                                     "analysis.max_total_cuts", 0),
+            **self.path_control(table),
         )
+
+    def path_control(self, table) -> dict:
+        """``[analysis]`` ``control`` and ``track`` as AnalysisSettings fields."""
+        control = _string(table.get("control", "load"), "analysis.control")
+        if control not in CONTROLS:
+            raise CaseError("analysis.control", f'unknown control "{control}"' + _suggest(control, CONTROLS))
+        track = table.get("track", [])
+        if not isinstance(track, list):
+            raise CaseError("analysis.track", f"expected an array of node ids, found {describe_value(track)}")
+        names = tuple(self.node(n, f"analysis.track[{k}]") for k, n in enumerate(track))
+        seen: dict[str, int] = {}
+        for k, n in enumerate(names):
+            if n in seen:
+                raise CaseError(f"analysis.track[{k}]", f'node "{n}" is tracked twice '
+                                f"(first at analysis.track[{seen[n]}])")
+            seen[n] = k
+        return {"control": control, "track": names}
 
 
     def report(self, value) -> dict:

@@ -58,34 +58,29 @@ class FromBaseProblem(StaticProblem):
     """
 
     def __init__(self, session: "Session", added: LoadVectors, model: Model | None = None):
-        # not StaticProblem.__init__: that one starts from the model's geometry
-        self.model = model or session.model
-        self.assembler = session.assembler
+        assembler = session.assembler
         if model is not None:
-            self.assembler = Assembler.__new__(Assembler)
-            self.assembler.__dict__.update(session.assembler.__dict__)
-            self.assembler.model = model
-            self.assembler._guess = {}
-        self.free = self.assembler.free
-        self.solver = session.solver
+            # same pattern, other unstressed lengths: share the pattern arrays
+            assembler = Assembler.__new__(Assembler)
+            assembler.__dict__.update(session.assembler.__dict__)
+            assembler.model = model
+            assembler._guess = {}
+        model = model or session.model
+        # StaticProblem's own set-up (attributes its methods and the driver
+        # read), then the start moved to the base state
+        super().__init__(model, session.base_loads + added, assembler, session.solver)
         self.base = session.base_loads
         self.added = added
-        self.loads = self.base + added
         self._start = session.base_state
-        self._roundoff = None
         self.assembler.forget()
         self.assembler.remember(session.base_responses)
         ev = self.assembler.evaluate(self._start, self.base, 1.0, want_tangent=False)
         self._r0 = ev.internal - self.base.nodal
         # modified Newton with the base factorization, while it converges fast
-        self._base_factor = session.base_factor if model is None else None
+        self._base_factor = session.base_factor if model is session.model else None
         self._previous = None
         self._steps = 0
         self._at = None
-        # the attributes StaticProblem's methods and the driver read
-        self.failure_reason = ""
-        self._solved = False
-        self.last_increment_solved = False
 
     def _loads_at(self, lam: float) -> LoadVectors:
         return self.base + self.added.scaled(lam)
