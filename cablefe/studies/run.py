@@ -27,7 +27,8 @@ from ..model import Model
 from ..patterns import match_indices
 from ..results import Results
 from ..solvers.newton import NewtonSettings
-from .base import STUDY_INCREMENTS, StudyContext, TaskResult, Watch, member_extremes, session_for
+from .base import (STUDY_INCREMENTS, StudyContext, TaskResult, Watch, forget_session, member_extremes,
+                   session_for)
 from .influence import InfluenceLines, influence_lines
 from .lane import Lane
 from .runner import Runner
@@ -145,6 +146,7 @@ def run_study(results: Results, study, runner: Runner | None = None, solver: str
         _flag_nonlinear(out, influence, own, got, base_result)
     if kind == "tolerance":
         _statistics(out, got)
+    forget_session(ctx.token)   # the model, pattern and factorization are not needed any more
     return out
 
 
