@@ -72,6 +72,16 @@ def _parser() -> argparse.ArgumentParser:
                        help="solve only this combination (repeatable)")
         s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
                        help="sparse linear solver backend (default: [analysis] solver or auto)")
+        if name == "run":
+            _study_options(s)
+    s = sub.add_parser("study", help="run the case's [[studies]] alone (solving their base results)",
+                       description="live-load studies: influence lines, worst patches, sweeps, tolerances")
+    s.add_argument("case", help="case file (TOML)")
+    s.add_argument("-o", "--output", required=True, help="output folder")
+    s.add_argument("--only", action="append", metavar="NAME", help="run only this study (repeatable)")
+    s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
+                   help="sparse linear solver backend (default: [analysis] solver or auto)")
+    _study_options(s)
     text = "natural modes about a converged result (and the pedestrian check when configured): [modes]"
     s = sub.add_parser("modes", help=text, description=text, epilog="examples:\n  cablefe modes "
                        "cases/generated-suspension.toml -o out/modes",
@@ -83,6 +93,17 @@ def _parser() -> argparse.ArgumentParser:
     from .generate.command import add_parser as add_new_parser
     add_new_parser(sub, _Parser)
     return p
+
+
+def _positive(text: str) -> int:
+    if not text.isdigit() or int(text) < 1:
+        raise argparse.ArgumentTypeError(f"expected a positive integer, found {text!r}")
+    return int(text)
+
+
+def _study_options(s) -> None:
+    s.add_argument("--workers", type=_positive, metavar="N", help="local processes for the studies (default: all cores)")
+    s.add_argument("--scheduler", metavar="ADDRESS", help="run the studies on a Dask cluster (tcp://host:8786)")
 
 
 def _fmt(x, unit, digits=4):
@@ -277,10 +298,15 @@ def cmd_solve(args, shape_first=False) -> int:
         if missing:
             extra = {"incomplete": {"reason": f"{what} while solving {missing[0]}"
                                     + (f": {failure}" if failure else ""), "not_solved": missing}}
-        design = None
+        design = done = None
         modes_status = 0
         try:
             write_result_files(results, folder.staging, extra=extra)
+            if shape_first and model.spec.studies and not missing:   # `run`: after the solve, before design
+                from .studies.command import add_to_results, run_studies
+                done = run_studies(results, folder.staging, workers=args.workers, scheduler=args.scheduler,
+                                   solver=args.solver, progress_stream=sys.stderr if live else None)
+                add_to_results(results, folder.staging, done)
             if shape_first and model.spec.modes is not None and not missing:
                 # after solve, before design and report; written with the set
                 staged_args = argparse.Namespace(**{**vars(args), "output": str(folder.staging)})
@@ -289,10 +315,13 @@ def cmd_solve(args, shape_first=False) -> int:
                 from .report.html import write_report
                 if not missing:   # no design verdict on part of the results
                     from .design.stage import design_stage
+                    # envelopes of this run's studies, else those a `study` run left in OUT
                     design = design_stage(results, folder.staging, CAUTION, args.case, args.solver,
-                                          read_from=out)
+                                          read_from=None if done is not None else out)
                     if design is not None:
                         results = design.results
+                        if done is not None:   # design rewrote results.json
+                            add_to_results(results, folder.staging, done)
                 write_report(results, folder.staging, case, CAUTION, design)
             written = folder.commit()
         except OSError as exc:
@@ -302,6 +331,8 @@ def cmd_solve(args, shape_first=False) -> int:
             return 2
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
     _summary(results, design)
+    if done is not None:
+        _study_summary(done)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
     converged = sum(r.converged for r in results.items)
@@ -310,6 +341,10 @@ def cmd_solve(args, shape_first=False) -> int:
               + f"; wrote the {len(results.items)} result(s) solved before it ({converged} converged) "
               f"to {out}; not solved: {', '.join(missing)} (marked in results.json)", file=sys.stderr)
         return 130 if stopped else 1
+    if done is not None and done.failed:
+        print(f"cablefe: failed solves in studies: {', '.join(done.failed)} (marked in envelope.json)",
+              file=sys.stderr)
+        return 1
     if design is not None and not design.settled:
         print(f"cablefe: sizing: {design.outcome.sizing['message']} (see design.json)", file=sys.stderr)
         return 1
@@ -350,6 +385,32 @@ def cmd_modes(args, model=None, results=None, shown_folder=None) -> int:
     return 0
 
 
+def _study_summary(done) -> None:
+    for name, why in done.skipped:
+        print(f"  study {name}: skipped, {why}")
+    for name, s in done.summary.items():
+        line = f"  study {name} ({s['kind']}): {s['solves']} solve(s)" + (f", {s['failed']} FAILED" if s["failed"] else "")
+        if "largest_tension" in s:
+            line += f"; largest tension {s['largest_tension']['value']:.4g} in {s['largest_tension']['member']}"
+        print(line)
+
+
+def cmd_study(args) -> int:
+    from .studies.command import study_case
+    t0 = time.perf_counter()
+    _, done, written = study_case(args.case, args.output, args.only, args.workers, args.scheduler, args.solver,
+                                  sys.stderr if sys.stderr.isatty() else None)
+    print(f"ran {len(done.summary)} study(ies) in {time.perf_counter() - t0:.2f} s")
+    _study_summary(done)
+    print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
+    print("caution: " + CAUTION)
+    if done.failed:
+        print(f"cablefe: failed solves in studies: {', '.join(done.failed)} (marked in envelope.json)",
+              file=sys.stderr)
+        return 1
+    return 0
+
+
 def _check_options(args) -> None:
     """Options that name things the case or the machine may not have, checked before any work.
 
@@ -379,6 +440,7 @@ def _check_options(args) -> None:
 def main(argv=None) -> int:
     """Run the command line; returns the exit status (0, 1 or 2, 130 on Ctrl-C)."""
     from .errors import CaseError
+    from .studies.runner import RunnerError
     try:
         args = _parser().parse_args(argv)
     except UsageError as exc:
@@ -400,6 +462,8 @@ def main(argv=None) -> int:
             return cmd_modes(args)
         if args.command == "run":
             return cmd_solve(args, shape_first=True)
+        if args.command == "study":
+            return cmd_study(args)
         if args.command == "new":
             from .generate.command import run as cmd_new
             try:
@@ -410,6 +474,9 @@ def main(argv=None) -> int:
     except CaseError as exc:
         if exc.file is None and case is not None:
             exc = exc.with_file(str(case))
+        print(f"cablefe: {exc}", file=sys.stderr)
+        return 2
+    except RunnerError as exc:
         print(f"cablefe: {exc}", file=sys.stderr)
         return 2
     except FileNotFoundError as exc:

@@ -349,3 +349,25 @@ def test_result_folder_discards_its_staging_on_error(tmp_path):
         with ResultFolder(out):
             raise RuntimeError("writer failed")
     assert sorted(p.name for p in out.iterdir()) == ["mine.txt"]
+
+
+def test_folders_of_a_set_replace_the_previous_sets_and_keep_a_users(tmp_path):
+    out = tmp_path / "out"
+    (out / "studies").mkdir(parents=True)
+    (out / "studies" / "notes.txt").write_text("a user's own folder of that name")
+    with ResultFolder(out) as f:
+        (f.staging / "studies" / "crowd").mkdir(parents=True)
+        (f.staging / "studies" / "crowd" / "envelope.json").write_text("{}")
+        (f.staging / "results.json").write_text("{}")
+    assert (out / "studies" / "crowd" / "envelope.json").exists()
+    kept = [p for p in out.iterdir() if p.name.startswith("studies.before-")]
+    assert len(kept) == 1 and (kept[0] / "notes.txt").read_text().startswith("a user's")
+    # the next set's studies replace this set's; a set without them removes them
+    with ResultFolder(out) as f:
+        (f.staging / "studies" / "wind").mkdir(parents=True)
+        (f.staging / "studies" / "wind" / "envelope.json").write_text("{}")
+    assert [p.name for p in (out / "studies").iterdir()] == ["wind"]
+    with ResultFolder(out) as f:
+        (f.staging / "results.json").write_text("{}")
+    assert not (out / "studies").exists() and kept[0].exists()
+    assert sorted(p.name for p in out.iterdir() if not p.name.startswith(".")) == sorted(["results.json", kept[0].name])

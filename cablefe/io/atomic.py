@@ -340,18 +340,33 @@ class ResultFolder:
         """
         if self.staging is None:
             raise RuntimeError("ResultFolder.commit before open")
-        # plain files only: a nested writer's manifest, temporaries and folders stay behind
+        # plain files (a nested writer's manifest and temporaries stay behind), then folders
         files = sorted((p for p in self.staging.iterdir() if p.is_file() and not p.is_symlink()
                         and p.name != MANIFEST and not _TMP_RE.match(p.name)),
                        key=lambda p: (p.name in self.LAST, self.LAST.index(p.name) if p.name in self.LAST else 0,
                                       p.name))
-        new = [p.name for p in files]
+        # folders of the set (``studies/``): each replaces its namesake as a whole
+        folders = sorted(p for p in self.staging.iterdir() if p.is_dir() and not p.is_symlink()
+                         and not _STAGING_RE.match(p.name) and _plain_name(p.name))
+        new = [p.name for p in files] + [p.name for p in folders]
         old = _read_manifest(self.folder)
         with held_signals():
             # the manifest names old and new files while they are swapped,
             # so that a crash in between still leaves only known files
             write_text(self.folder / MANIFEST, json.dumps(
                 {"writer": "cablefe", "state": "replacing", "files": sorted(set(old) | set(new))}, indent=1))
+            for p in folders:
+                target = self.folder / p.name
+                if target.is_dir() and not target.is_symlink():
+                    if p.name in old:    # the previous set's: replaced
+                        aside = self.folder / f"{STAGING_PREFIX}{os.getpid()}-{secrets.token_hex(4)}"
+                        os.replace(target, aside)
+                        shutil.rmtree(aside, ignore_errors=True)
+                    else:                # not known to be cablefe's: kept under another name
+                        os.replace(target, self.folder / f"{p.name}.before-{secrets.token_hex(3)}")
+                elif target.exists() or target.is_symlink():
+                    os.replace(target, self.folder / f"{p.name}.before-{secrets.token_hex(3)}")
+                os.replace(p, target)
             for p in files:
                 os.replace(p, self.folder / p.name)
             for name in set(old) - set(new):
@@ -359,6 +374,8 @@ class ResultFolder:
                 if target.is_file() and not target.is_symlink():
                     with contextlib.suppress(FileNotFoundError):
                         target.unlink()
+                elif target.is_dir() and not target.is_symlink():
+                    shutil.rmtree(target, ignore_errors=True)
             write_text(self.folder / MANIFEST, json.dumps(
                 {"writer": "cablefe", "state": "complete", "files": new}, indent=1))
         self.committed = [self.folder / n for n in sorted(new, key=lambda n: n != "results.json")]
