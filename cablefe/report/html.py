@@ -370,9 +370,19 @@ def _sizing(design_data) -> str:
     parts.append(_table(["iteration"] + groups, rows, left=0))
     final = sizing.get("final", {})
     if final:
-        parts.append(_table(["group", "section", "passes"],
-                            [[_e(g), _e(v.get("section")), "yes" if v.get("passes") else "<span class=fail>no</span>"]
+        parts.append(_table(["group", "section", "passes", "no catalogue section passes"],
+                            [[_e(g), _e(v.get("section")), "yes" if v.get("passes") else "<span class=fail>no</span>",
+                              ("<span class=fail>" + _e(", ".join(v["no_section_passes"])) + "</span>")
+                              if v.get("no_section_passes") else "—"]
                              for g, v in final.items()], left=2))
+    if sizing.get("no_section_passes"):
+        parts.append("<p>Checks that no catalogue section makes pass (they did not drive the choice; "
+                     "the engineer must change the scheme, the loads or the catalogue):</p>" + _table(
+                         ["check", "groups", "utilization with the largest section(s)"],
+                         [[_e(e.get("check")), _e(", ".join(e.get("groups", []))),
+                           "slack" if e.get("utilization_with_largest") is None and e.get("check") == "slack"
+                           else fmt(e["utilization_with_largest"], 4) if e.get("utilization_with_largest") is not None
+                           else "—"] for e in sizing["no_section_passes"]], left=2))
     return "\n".join(parts)
 
 
