@@ -298,20 +298,26 @@ def size_members(spec: CaseSpec, results, envelopes=None, linear_solver=None, pr
     strength_fail = [k for k, v in final_info.items() if not (own_pass[labels.index(k)])]
     if strength_fail:
         message += "; no catalogue section passes the strength check for " + ", ".join(strength_fail)
+    F = spec.units
     if unfixable:
-        message += "; no catalogue section makes " + "; ".join(
-            f"{_check_label(k, labels)} pass (" + (f"largest uplift {u / 1e3:.4g} kN" if k[0] == "uplift" else
-                                                   "slack" if not math.isfinite(u) else f"u = {u:.3g}")
-            + " with the largest section" + ("s" if len(gs) > 1 else "") + "): it does not drive the choice"
-            for k, (gs, u) in unfixable.items())
+        def says(k, gs, u):
+            largest = " with the largest section" + ("s" if len(gs) > 1 else "")
+            if k[0] == "uplift":
+                return f"no catalogue section removes the support uplift ({u / F.force_scale:.4g} {F.force}{largest})"
+            return (f"no catalogue section makes {_check_label(k, labels)} pass ("
+                    + ("slack" if not math.isfinite(u) else f"u = {u:.3g}") + largest + ")")
+        message += "; " + "; ".join(says(k, gs, u) for k, (gs, u) in unfixable.items()) + (
+            ": " + ("it does" if len(unfixable) == 1 else "they do") + " not drive the choice")
     if envelopes:
         message += "; study envelopes are those of the case before sizing (run the studies on sized.toml)"
     info = {"settled": settled, "message": message, "groups": labels, "history": hist, "final": final_info,
             "analyses": len(history) + probes, "probe_analyses": probes,
-            "no_section_passes": [{"check": k[0], "group": labels[k[1]] if k[1] is not None else None,
-                                   "groups": [labels[g] for g in gs],
-                                   "utilization_with_largest": (u if math.isfinite(u) else None)}
-                                  for k, (gs, u) in unfixable.items()]}
+            "no_section_passes": [
+                {"check": k[0], "group": labels[k[1]] if k[1] is not None else None, "groups": [labels[g] for g in gs],
+                 # uplift: the largest uplift (case force unit); a slack member: null
+                 "utilization_with_largest": (u if math.isfinite(u) and k[0] != "uplift" else None),
+                 **({"largest_uplift": u / F.force_scale} if k[0] == "uplift" else {})}
+                for k, (gs, u) in unfixable.items()]}
     return SizingRun(current_spec, current, settled, info, cutting)
 
 
@@ -337,6 +343,11 @@ def with_final_checks(info: dict, outcome, spec: CaseSpec) -> dict:
             failing.append(f"{lab} ({', '.join(other)} in {len(bad)} member(s))")
     if failing:
         info["message"] += "; members of " + "; ".join(failing) + " still fail a check after sizing"
+    known = {e.get("check") for e in info.get("no_section_passes", [])}
+    deck = sorted({c.check for c in outcome.checks if c.check.startswith("deflection")
+                   and not c.utilization <= 1.0 and c.check not in known})
+    if deck:
+        info["message"] += f"; the deck still fails {', '.join(deck)} after sizing"
     return info
 
 
