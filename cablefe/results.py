@@ -127,6 +127,23 @@ def equilibrium_in_units(eq: Mapping, force_scale: float, length_scale: float) -
     return out
 
 
+def stability_and_path(model: Model, res: StaticResult) -> dict:
+    """The ``stability`` and ``path`` entries of a result, in the case's units.
+
+    ``stability`` counts the negative pivots (eigenvalues) of the tangent at
+    the last converged state (None when it was not measured); ``path`` has
+    one entry per converged step with the displacements of the tracked
+    nodes and of the node of largest displacement at that step.
+    """
+    o = res.outcome
+    n = o.negative_pivots[-1] if o.negative_pivots else None
+    L = model.spec.units.length_scale
+    ids = model.node_ids
+    path = [{"load_factor": lam, "displacements": dict(zip((ids[k] for k in nodes.tolist()), (disp / L).tolist()))}
+            for lam, nodes, disp in (e for e in o.path if e is not None)]
+    return {"stability": {"negative_pivots": n, "stable": None if n is None else n == 0}, "path": path}
+
+
 @dataclass(frozen=True)
 class Results:
     """All solved combinations of a model."""
@@ -258,7 +275,8 @@ class Results:
                     e["moment"] = ends[:, :, 4:6].tolist()
                     e["local_end_forces"] = ends.reshape(-1, 12).tolist()
                 members[mem.id] = e
-            out["results"][res.name] = {**result_header(res, F, L), "nodes": nodes, "members": members}
+            out["results"][res.name] = {**result_header(res, F, L), **stability_and_path(m, res),
+                                        "nodes": nodes, "members": members}
             deck = self.deck_deflection(res.name)
             if deck is not None:   # extension: [report] deck
                 out["results"][res.name]["deck"] = {"node": deck["node"],

@@ -187,6 +187,8 @@ class AnalysisSettings:
     max_cuts: int = 12                # extension: how often an increment may be halved in a row
     max_total_iterations: int = 400   # extension: Newton iterations per result (work budget)
     max_total_cuts: int = 40          # extension: increment cuts per result (work budget)
+    control: str = "load"             # "load" | "arc-length": how the path to λ = 1 is followed
+    track: tuple[str, ...] = ()       # node ids whose displacements every converged step records
 
 
 @dataclass(frozen=True)

@@ -197,10 +197,11 @@ def test_bad_arguments_are_refused(kw):
 
 
 def test_load_control_warns_when_it_jumps_a_limit_point():
-    # source: a Newton direction du = -K^-1 r with du . r > 0 proves that the
-    # tangent K is not positive definite (Sylvester's criterion; any linear
-    # algebra text), which on the Von Mises truss happens only past the limit
-    # point (Bažant & Cedolin 1991, ch. 4, from memory)
+    # source: the iterations meet a tangent with a negative pivot, i.e. a
+    # negative eigenvalue (Sylvester's law of inertia; any linear algebra
+    # text), which on the Von Mises truss happens only past the limit point
+    # (Bažant & Cedolin 1991, ch. 4, from memory), while both converged
+    # states around the jump are stable
     u_star, P_max = limit_point()
     jumping, _ = truss_problem(2.0 * P_max)       # λ = 1 lies beyond the snap
     out = follow_load_path(jumping, NewtonSettings(increments=8))

@@ -58,7 +58,10 @@ Extensions to the interface page
 ``[analysis]``: ``solver`` (one of :data:`SOLVERS`), ``max_cuts``
     (how often an increment may be halved in a row), ``max_total_iterations``
     and ``max_total_cuts`` (the work budget of one result: Newton iterations
-    and increment cuts over its whole load path).
+    and increment cuts over its whole load path); ``control`` (one of
+    :data:`CONTROLS`: load control, or arc length through limit points) and
+    ``track`` (node ids whose displacements each converged step records in
+    the result's ``path``).
 ``[design]``, ``[catalogues]``, fy on materials, Wy and Wz on sections
     Design checks and sizing: read by :mod:`cablefe.io.case_design`.
 ``[report]``
@@ -177,7 +180,8 @@ SHAPE_KEYS = ("method", "permanent", "tolerance", "targets", "adjust", "force_de
 ADJUST_KEYS = ("members", "together")
 BEAM_REFERENCE_KEYS = ("position", "rotation")
 ANALYSIS_KEYS = ("increments", "tolerance", "max_iterations", "solver", "max_cuts",
-                 "max_total_iterations", "max_total_cuts")
+                 "max_total_iterations", "max_total_cuts", "control", "track")
+CONTROLS = ("load", "arc-length")
 SHAPE_METHODS = ("target", "force-density")
 SOLVERS = ("auto", "superlu", "splu-default", "pardiso")
 
@@ -1217,7 +1221,25 @@ class _Reader:
                                           "analysis.max_total_iterations", 1),
             max_total_cuts=_integer(table.get("max_total_cuts", defaults.max_total_cuts),
                                     "analysis.max_total_cuts", 0),
+            **self.path_control(table),
         )
+
+    def path_control(self, table) -> dict:
+        """``[analysis]`` ``control`` and ``track`` as AnalysisSettings fields."""
+        control = _string(table.get("control", "load"), "analysis.control")
+        if control not in CONTROLS:
+            raise CaseError("analysis.control", f'unknown control "{control}"' + _suggest(control, CONTROLS))
+        track = table.get("track", [])
+        if not isinstance(track, list):
+            raise CaseError("analysis.track", f"expected an array of node ids, found {describe_value(track)}")
+        names = tuple(self.node(n, f"analysis.track[{k}]") for k, n in enumerate(track))
+        seen: dict[str, int] = {}
+        for k, n in enumerate(names):
+            if n in seen:
+                raise CaseError(f"analysis.track[{k}]", f'node "{n}" is tracked twice '
+                                f"(first at analysis.track[{seen[n]}])")
+            seen[n] = k
+        return {"control": control, "track": names}
 
 
     def report(self, value) -> dict:

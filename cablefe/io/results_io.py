@@ -13,7 +13,7 @@ import orjson
 
 from ..assembly import cable_inputs
 from ..elements import catenary
-from ..results import Results, beam_section_forces, element_end_tensions, result_header
+from ..results import Results, beam_section_forces, element_end_tensions, result_header, stability_and_path
 from .atomic import atomic_path, write_text
 
 CURVE_POINTS = 9   # points drawn along each catenary element (ends included)
@@ -102,7 +102,8 @@ def _text_tables(results: Results) -> dict | None:
             nodes = b"{}"
         if not m.members:
             members = b"{}"
-        out["results"][res.name] = {**result_header(res, F, L), "nodes": _Text(nodes), "members": _Text(members)}
+        out["results"][res.name] = {**result_header(res, F, L), **stability_and_path(m, res),
+                                    "nodes": _Text(nodes), "members": _Text(members)}
     return out
 
 

@@ -156,6 +156,12 @@ def _result_section(results, name, entry, units, figure) -> str:
                  f"iterations, residual {entry.get('residual', float('nan')):.2e}."
                  + ("" if conv else " Its values are those of the last converged load factor and must not be "
                     "used for design.") + "</p>")
+    stab = entry.get("stability") or {}
+    n = stab.get("negative_pivots")
+    parts.append("<p>Stability at the last converged state: "
+                 + ("not determined" if n is None else "stable" if n == 0
+                    else f"<span class=fail>unstable</span> ({n} negative pivot(s) of the tangent stiffness)")
+                 + ".</p>")
     for w in entry.get("warnings", []):
         parts.append(f'<p class="warn">Warning: {_e(w)}</p>')
     eq = entry.get("equilibrium")

@@ -13,6 +13,16 @@ def _f(x, unit, digits=4):
     return f"{x:.{digits}g} {unit}"
 
 
+def stability_words(outcome) -> str:
+    """The stability of the last converged state (negative pivots of the tangent), in words."""
+    n = outcome.negative_pivots[-1] if outcome.negative_pivots else None
+    if n is None:
+        return "not determined"
+    if n == 0:
+        return "stable (no negative pivot of the tangent stiffness)"
+    return f"UNSTABLE ({n} negative pivot(s) of the tangent stiffness)"
+
+
 def summary_lines(results, design=None) -> list[str]:
     """Per result: status, warnings, largest displacement of the deck or structure,
     tension extremes per member group with slack members, uplifted bearings,
@@ -28,6 +38,7 @@ def summary_lines(results, design=None) -> list[str]:
         o = res.outcome
         flag = "converged" if o.converged else f"NOT CONVERGED ({o.message})"
         lines.append(f"  {res.name}: {flag}; load factor {o.load_factor:.3f}, {o.iterations} iterations")
+        lines.append(f"    stability: {stability_words(o)}")
         lines += [f"    WARNING: {w}" for w in res.warnings]
         eq = res.equilibrium
         if eq:   # every result's equilibrium check: reactions against the applied loads

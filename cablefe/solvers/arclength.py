@@ -56,15 +56,15 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import MechanismError
-from .newton import NewtonSettings, PathOutcome, _relative, is_converged, newton_increment
+from .newton import (NewtonSettings, PathOutcome, _relative, indefinite_iterate, is_converged, negative_pivots,
+                     newton_increment, observe, stability_warnings)
 
 log = logging.getLogger(__name__)
 
 #: corrector iterations aimed at per step; the next arc length scales by
 #: sqrt(DESIRED_ITERATIONS / iterations), Crisfield's rule (from memory)
 DESIRED_ITERATIONS = 4
-#: the arc length never grows beyond this multiple of the first one, so a
-#: long easy stretch does not leap over a limit point it should resolve
+#: kept for callers that size the cap from the first arc length
 MAX_GROWTH = 4.0
 #: relative step in λ of the central difference for ∂r/∂λ: truncation
 #: ~h² |∂³r/∂λ³| and round-off ~eps |r| / h are both ~1e-10 of the load scale
@@ -82,7 +82,9 @@ class ArcLengthOutcome(PathOutcome):
     load_factor : the last converged load factor
     iterations : total corrector and landing iterations
     residual : relative residual of the last converged state
-    status : "converged" | "max-steps" | "max-cuts" | "mechanism" | "non-finite"
+    status : "converged" | "max-steps" | "max-cuts" | "mechanism" | "non-finite" | "budget" | "no-load"
+        ("no-load": the load does not move the structure at λ = 0, so no
+        first arc length can be set)
     message : a sentence for the engineer
     history : relative residual of every iteration, in order
     increments : load factors of the converged points, in order (the path;
@@ -91,6 +93,8 @@ class ArcLengthOutcome(PathOutcome):
     arc_lengths : arc length (norm of the unknowns' increment, m or rad) of
         each converged step; the landing step records the interpolated
         length it started from
+    negative_pivots, path : as in load control, one entry per converged
+        step: aligned with ``increments[1:]`` (the start λ = 0 is not a step)
     """
 
     states: tuple = ()
@@ -98,9 +102,19 @@ class ArcLengthOutcome(PathOutcome):
 
 
 def _load_derivative(problem, state, lam) -> np.ndarray:
-    """∂r/∂λ at fixed unknowns by a central difference (prescribed DOFs moved along)."""
+    """∂r/∂λ at fixed unknowns by a central difference (prescribed DOFs moved along).
+
+    At 0 <= λ < h the one-sided second-order difference
+    ``(-3 r(λ) + 4 r(λ + h) - r(λ + 2h)) / 2h`` is used instead: element
+    loads must not be evaluated at a negative load factor there (a
+    catenary's weight would change sign).
+    """
     h = DLAM * max(1.0, abs(lam))
     r_p, _, _ = problem.evaluate(problem.impose(state, lam, lam + h), lam + h, False)
+    if 0.0 <= lam < h:
+        r_0, _, _ = problem.evaluate(state, lam, False)
+        r_pp, _, _ = problem.evaluate(problem.impose(state, lam, lam + 2.0 * h), lam + 2.0 * h, False)
+        return (4.0 * r_p - 3.0 * r_0 - r_pp) / (2.0 * h)
     r_m, _, _ = problem.evaluate(problem.impose(state, lam, lam - h), lam - h, False)
     return (r_p - r_m) / (2.0 * h)
 
@@ -115,13 +129,17 @@ class _Try:
     ratio: float = math.inf
     failure: str = ""
     mechanism: MechanismError | None = None
+    tangent: object = None           # the tangent at the converged point
+    indefinite: bool = False         # some corrector tangent was not positive definite
 
 
-def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -> _Try:
+def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history, w: float = 0.0) -> _Try:
     """One arc-length step of length ``dl`` from the converged ``(state, lam)``.
 
     ``direction`` is the previous converged increment (None on the first
-    step); ``lam_sign`` the sign of λ growth wanted on the first step.
+    step); ``lam_sign`` the sign of λ growth wanted on the first step;
+    ``w`` the weight of the load factor in the constraint
+    ``||Δu||² + w² Δλ² = dl²`` (m per unit λ; 0: the cylinder).
     """
     roundoff = float(getattr(problem, "roundoff", 0.0))
     # -- predictor along the tangent, or along the previous step (secant)
@@ -132,8 +150,9 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
     except MechanismError as exc:
         ut, singular = None, exc
     if ut is not None and np.all(np.isfinite(ut)) and float(np.linalg.norm(ut)) > 0.0:
-        sign = lam_sign if direction is None else (1.0 if float(direction[0] @ ut) >= 0.0 else -1.0)
-        dlam = sign * dl / float(np.linalg.norm(ut))
+        sign = lam_sign if direction is None else \
+            (1.0 if float(direction[0] @ ut) + w * w * direction[1] >= 0.0 else -1.0)
+        dlam = sign * dl / math.sqrt(float(ut @ ut) + w * w)
         du = dlam * ut
     else:
         if direction is None:
@@ -143,11 +162,12 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
         # singular tangent exactly at the converged point: the previous
         # increment (unknowns, λ) scaled to the new length is the predictor
         prev_du, prev_dlam = direction
-        scale = dl / float(np.linalg.norm(prev_du))
+        scale = dl / math.sqrt(float(prev_du @ prev_du) + (w * prev_dlam) ** 2)
         du, dlam = scale * prev_du, scale * prev_dlam
     lam_new = lam + dlam
     trial = problem.impose(problem.advance(state, du), lam, lam_new)
-    # -- corrector on the cylinder ||du|| = dl
+    # -- corrector on the cylinder ||du||² + w² Δλ² = dl²
+    indefinite = False
     for it in range(settings.max_iterations + 1):
         r, ref, K = problem.evaluate(trial, lam_new, True)
         ratio = _relative(r, ref)
@@ -155,7 +175,7 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
         if not math.isfinite(ratio):
             return _Try(False, iterations=it, failure="non-finite")
         if is_converged(ratio * ref, ref, settings.tolerance, roundoff):
-            return _Try(True, trial, lam_new, du, it, ratio)
+            return _Try(True, trial, lam_new, du, it, ratio, tangent=K, indefinite=indefinite)
         if it == settings.max_iterations:
             break
         try:
@@ -165,11 +185,13 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
             return _Try(False, iterations=it, failure="mechanism", mechanism=exc)
         if not (np.all(np.isfinite(ur)) and np.all(np.isfinite(ut))):
             return _Try(False, iterations=it, failure="non-finite")
-        # ||du + ur + x ut||² = dl²  ->  a x² + b x + c = 0
+        indefinite |= indefinite_iterate(problem, K, ur, r)
+        # ||du + ur + x ut||² + w² (Δλ + x)² = dl²  ->  a x² + b x + c = 0
         base = du + ur
-        a = float(ut @ ut)
-        b = 2.0 * float(ut @ base)
-        c = float(base @ base) - dl * dl
+        D = lam_new - lam
+        a = float(ut @ ut) + w * w
+        b = 2.0 * (float(ut @ base) + w * w * D)
+        c = float(base @ base) + (w * D) ** 2 - dl * dl
         disc = b * b - 4.0 * a * c
         if a == 0.0 or disc < 0.0:
             return _Try(False, iterations=it, failure="complex-roots")
@@ -178,7 +200,7 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
         q = -0.5 * (b + math.copysign(sq, b))
         roots = (q / a, c / q) if q != 0.0 else (0.0, 0.0)
         # Crisfield's choice: the new increment closest in angle to the old one
-        x = max(roots, key=lambda x: float(du @ (base + x * ut)))
+        x = max(roots, key=lambda x: float(du @ (base + x * ut)) + w * w * D * (D + x))
         step = ur + x * ut
         du = du + step
         trial = problem.impose(problem.advance(trial, step), lam_new, lam_new + x)
@@ -188,7 +210,8 @@ def _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history) -
 
 def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_length: float | None = None,
                       max_steps: int = 200, target_load_factor: float = 1.0,
-                      progress=None, max_arc_length: float | None = None) -> ArcLengthOutcome:
+                      progress=None, max_arc_length: float | None = None,
+                      keep_states: bool = True, load_weight: float = 0.0) -> ArcLengthOutcome:
     """Trace the equilibrium path by arc length until λ reaches the target.
 
     Parameters
@@ -209,7 +232,27 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
     progress : callable(load_factor, iterations), optional
     max_arc_length : float, optional
         Longest arc length the steps may grow to (same units as
-        ``arc_length``); default ``MAX_GROWTH`` times the first.
+        ``arc_length``).  Default: no fixed cap; instead a step may change
+        the load factor by at most ``|target_load_factor| / increments``
+        (the next arc length is shortened in proportion to the last step's
+        change), so that a long easy stretch does not leap over a limit
+        point it should resolve, while a path much longer than the first
+        tangent response (a stiff start, a softening structure) is still
+        followed in a bounded number of steps.
+    keep_states : bool
+        Keep every converged state in ``states`` (memory of one state per
+        step); False keeps none (``state`` is the last one, ``path`` what
+        ``problem.observe`` recorded).
+    load_weight : float
+        ψ >= 0 (dimensionless): the constraint becomes
+        ``||Δu||² + (ψ s)² Δλ² = Δl²`` with ``s = ||K⁻¹ ∂r/∂λ||`` at λ = 0
+        (m per unit λ), Crisfield's spherical arc length (from memory).  0
+        (default) is the cylinder.  With ψ > 0 a stretch where the
+        displacements stand still while λ moves (a shaped structure loaded
+        by the very loads it was shaped for goes out and comes back, with
+        ``du/dλ = 0`` on the way) is passed; the cylinder cannot pass it.
+        The default first arc length grows by ``sqrt(1 + ψ²)``, so that the
+        first step still moves λ by about ``target / increments``.
 
     Returns
     -------
@@ -228,33 +271,67 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
     lam = 0.0
     lam_sign = math.copysign(1.0, target_load_factor)
     history: list[float] = []
-    lams, states, lengths = [0.0], [state], []
+    lams, states, lengths = [0.0], [state] if keep_states else [], []
     total = 0
     last_ratio = 0.0
-    if arc_length is None:
+    if not (math.isfinite(load_weight) and load_weight >= 0.0):
+        raise ValueError(f"load_weight must be a finite number >= 0, got {load_weight}")
+    w = 0.0
+    if arc_length is None or load_weight > 0.0:
         _, _, K = problem.evaluate(state, lam, True)
         try:
             ut = problem.solve_linear(K, _load_derivative(problem, state, lam))
         except MechanismError as exc:
             return ArcLengthOutcome(state, False, lam, 0, 0.0, "mechanism", str(exc) + "; at load factor 0",
                                     (), tuple(lams), states=tuple(states), arc_lengths=())
-        arc_length = abs(target_load_factor) / max(settings.increments, 1) * float(np.linalg.norm(ut))
+        w = load_weight * float(np.linalg.norm(ut))
+        if not math.isfinite(w):
+            w = 0.0
+    if arc_length is None:
+        arc_length = abs(target_load_factor) / max(settings.increments, 1) * float(np.linalg.norm(ut)) \
+            * math.sqrt(1.0 + load_weight ** 2)
         if not (math.isfinite(arc_length) and arc_length > 0.0):
-            return ArcLengthOutcome(state, False, lam, 0, 0.0, "non-finite",
+            # status "no-load": the caller may use load control instead
+            return ArcLengthOutcome(state, False, lam, 0, 0.0, "no-load" if arc_length == 0.0 else "non-finite",
                                     "the load does not move the structure; no arc length can be set",
                                     (), tuple(lams), states=tuple(states), arc_lengths=())
-    dl_max = MAX_GROWTH * arc_length if max_arc_length is None else max_arc_length
+    dl_max = math.inf if max_arc_length is None else max_arc_length
+    dlam_max = abs(target_load_factor) / max(settings.increments, 1) if max_arc_length is None else math.inf
     dl = min(arc_length, dl_max)
     direction = None
     cuts = 0
+    pivots: list = []
+    path: list = []
+    jumped: list = []
+
+    def finish(converged, status, msg):
+        warnings = stability_warnings(lams[1:], pivots, jumped, hasattr(problem, "inertia"),
+                                      "the arc-length steps were too long to resolve it")
+        for w in warnings:
+            log.warning(w)
+        return ArcLengthOutcome(state, converged, lam, total, last_ratio, status, msg, tuple(history),
+                                tuple(lams), tuple(warnings), tuple(pivots), tuple(path),
+                                states=tuple(states), arc_lengths=tuple(lengths))
 
     def stop(status, msg):
-        return ArcLengthOutcome(state, False, lam, total, last_ratio, status,
-                                msg + f"; last converged load factor {lam:.4f}", tuple(history),
-                                tuple(lams), states=tuple(states), arc_lengths=tuple(lengths))
+        return finish(False, status, msg + f"; last converged load factor {lam:.4f}")
+
+    def record(step_from, step, tangent, indefinite):
+        # the stability of the converged point and what to keep of it
+        if indefinite:
+            jumped.append((step_from, step[1]))
+        pivots.append(negative_pivots(problem, tangent))
+        path.append(observe(problem, *step))
 
     while len(lams) <= max_steps:
-        t = _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history)
+        try:
+            t = _arc_step(problem, state, lam, dl, direction, lam_sign, settings, history, w)
+        except ValueError as exc:
+            # an iterate outside the elements' domain (a catenary's weight
+            # turned negative as λ < 0, a member length of zero): a failed
+            # step, cut like any other
+            log.info("arc-length step left the elements' domain: %s", exc)
+            t = _Try(False, failure="domain")
         total += t.iterations
         landed = None
         if t.converged and (lam - target_load_factor) * (t.lam - target_load_factor) <= 0.0 \
@@ -271,6 +348,13 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
         if not t.converged:
             cuts += 1
             log.info("arc-length step of %.3g from load factor %.4f failed (%s); cutting", dl, lam, t.failure)
+            budget = getattr(settings, "max_total_iterations", math.inf)
+            if total >= budget:
+                # bounded work, as in load control; converged steps are
+                # bounded by max_steps
+                return stop("budget", f"no convergence beyond load factor {lam:.4f}: the work budget of "
+                                      f"{budget} iterations per result is spent ([analysis] "
+                                      f"max_total_iterations sets it)")
             if cuts > settings.max_cuts:
                 if t.failure == "mechanism":
                     return stop("mechanism", str(t.mechanism))
@@ -282,23 +366,33 @@ def follow_arc_length(problem, settings: NewtonSettings = NewtonSettings(), arc_
             continue
         if landed is not None:
             lengths.append(landing_length)
+            lam_from = lam
             state, lam, last_ratio = landed.state, target_load_factor, landed.ratio
             problem.commit(state)
             lams.append(lam)
-            states.append(state)
+            if keep_states:
+                states.append(state)
+            record(lam_from, (state, lam), landed.tangent, landed.indefinite or t.indefinite)
             if progress is not None:
                 progress(lam, total)
-            return ArcLengthOutcome(state, True, lam, total, last_ratio, "converged", "converged",
-                                    tuple(history), tuple(lams), states=tuple(states), arc_lengths=tuple(lengths))
+            return finish(True, "converged", "converged")
         direction = (t.du, t.lam - lam)
+        lam_from = lam
         state, lam, last_ratio = t.state, t.lam, t.ratio
         problem.commit(state)
+        record(lam_from, (state, lam), t.tangent, t.indefinite)
         lams.append(lam)
-        states.append(state)
+        if keep_states:
+            states.append(state)
         lengths.append(dl)
         cuts = 0
         if progress is not None:
             progress(lam, total)
         log.info("arc length %.3g: load factor %.4f in %d iterations", dl, lam, t.iterations)
-        dl = min(dl_max, dl * min(2.0, math.sqrt(DESIRED_ITERATIONS / max(t.iterations, 1))))
+        grown = dl * min(2.0, math.sqrt(DESIRED_ITERATIONS / max(t.iterations, 1)))
+        moved = abs(direction[1])
+        if moved > 0.0:
+            # at the same rate of λ along the path, at most dlam_max per step
+            grown = min(grown, dl * dlam_max / moved)
+        dl = min(dl_max, grown)
     return stop("max-steps", f"target load factor {target_load_factor:.4f} not reached in {max_steps} steps")

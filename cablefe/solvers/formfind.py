@@ -287,7 +287,9 @@ def _settings(spec: CaseSpec) -> NewtonSettings:
 
 
 def _equilibrium(model: Model, factors, settings, linear_solver) -> StaticResult:
-    res = solve_combination(model, "permanent state", factors, settings=settings, linear_solver=linear_solver)
+    # trial shapes by load control, whatever [analysis] control asks for the results
+    res = solve_combination(model, "permanent state", factors, settings=settings, linear_solver=linear_solver,
+                            control="load")
     if not res.converged:
         raise ShapeError(f"no equilibrium under the permanent loads: {res.outcome.message}")
     return res

@@ -20,7 +20,24 @@ The driver sees a *problem*: an object with
 
 The problem may also carry ``roundoff``: the force (N) below which its
 residual cannot be computed reliably (round-off of stiff members), 0 if
-absent.
+absent, and two optional methods:
+
+``inertia(K, factorized_only=False)``
+    ``(positive, negative, zero)`` eigenvalue counts of the (symmetric part
+    of the) tangent ``K``, or None when unknown: the stability check.  With
+    ``factorized_only`` only when the factorisation just made for
+    ``solve_linear`` gives it without more work (the iterations' check).
+``observe(state, lam)``
+    what to record of each converged step (``PathOutcome.path``).
+
+Stability is measured on every factorised tangent: the negative pivots
+(eigenvalues) of the tangent at each converged state are kept in
+``PathOutcome.negative_pivots`` and any tangent met in the iterations with
+negative pivots is noted, so that a limit point jumped over between two
+stable states is reported (:func:`stability_warnings`).  Without
+``inertia`` a Newton direction that is not a descent direction
+(``du . r > 0`` with ``du = -K^-1 r``, which proves that the symmetric part
+of ``K`` is not positive definite) stands in for the count.
 
 Convergence test (the only one): an increment has converged when
 
@@ -73,6 +90,9 @@ class PathOutcome:
     increments : load factors of the converged increments
     warnings : sentences for the engineer, e.g. an indefinite tangent met
         on the way (a limit point may have been jumped)
+    negative_pivots : negative pivots (eigenvalues) of the tangent at each
+        converged step, in the order of ``increments``; None where unknown
+    path : ``problem.observe(state, λ)`` of each converged step
     """
 
     state: object
@@ -85,6 +105,8 @@ class PathOutcome:
     history: tuple = ()
     increments: tuple = ()
     warnings: tuple = ()
+    negative_pivots: tuple = ()
+    path: tuple = ()
 
 
 def is_converged(residual_norm: float, reference: float, tolerance: float, roundoff: float = 0.0) -> bool:
@@ -101,7 +123,8 @@ class _Step:
     failure: str = ""
     mechanism: MechanismError | None = None
     history: list = field(default_factory=list)
-    indefinite: bool = False     # some Newton direction was not a descent direction
+    indefinite: bool = False     # some iteration's tangent was not positive definite
+    tangent: object = None       # the tangent at the converged state
 
 
 def _relative(r, ref) -> float:
@@ -200,6 +223,79 @@ def _accept(problem, state, lam):
     return state, r, ref, K, _relative(r, ref)
 
 
+def negative_pivots(problem, K) -> int | None:
+    """Negative pivots of the tangent ``K`` by ``problem.inertia``; None if unknown."""
+    count = getattr(problem, "inertia", None)
+    if count is None or K is None:
+        return None
+    found = count(K)
+    return None if found is None else int(found[1])
+
+
+def indefinite_iterate(problem, K, du, r) -> bool:
+    """True when the tangent ``K`` just factorised for ``du = -K^-1 r`` is indefinite.
+
+    The pivot count when the factorisation just made gives it, otherwise
+    (no ``inertia``, or an unsymmetric tangent) the descent test:
+    ``du . r = -r K^-1 r`` is negative for a positive definite ``K``, so a
+    positive value proves an indefinite tangent.
+    """
+    count = getattr(problem, "inertia", None)
+    found = None if count is None else count(K, factorized_only=True)
+    if found is not None:
+        return found[1] > 0
+    return float(du @ r) > INDEFINITE_SLOPE * float(np.linalg.norm(du) * np.linalg.norm(r))
+
+
+JUMP_ADVICE = 'follow the path with [analysis] control = "arc-length"'
+
+
+def stability_warnings(load_factors, pivots, jumped=(), measured: bool = True,
+                       advice: str = JUMP_ADVICE) -> list[str]:
+    """Sentences for the engineer from the stability of a traced path.
+
+    Parameters
+    ----------
+    load_factors : load factor of each converged step
+    pivots : negative pivots of the tangent at each step (None: unknown)
+    jumped : ``(λ_from, λ_to)`` of the steps whose iterations met a tangent
+        with negative pivots
+    measured : False when the problem cannot count pivots at all (no
+        ``inertia``): unknown counts are then not worth a warning
+    advice : what to do about a jumped limit point
+    """
+    out = []
+    lam = list(load_factors)
+    neg = list(pivots)
+    bad = [k for k, n in enumerate(neg) if n]
+    if bad:
+        k = bad[0]
+        more = (f" and at {len(bad) - 1} more converged step(s), the last at load factor {lam[bad[-1]]:.4f}"
+                if len(bad) > 1 else "")
+        out.append(f"unstable equilibrium: the tangent stiffness has {neg[k]} negative pivot(s) at "
+                   f"load factor {lam[k]:.4f}{more}; the structure has buckled or passed a limit "
+                   f"point there (a nearby state of lower energy exists)")
+    unknown = [k for k, n in enumerate(neg) if n is None]
+    if measured and unknown:
+        out.append(f"the stability (negative pivots of the tangent) could not be determined at load "
+                   f"factor {lam[unknown[0]]:.4f}")
+    stable = {round(l, 12) for l, n in zip(lam, neg) if n == 0}
+    for a, b in jumped:
+        # both ends stable: the iterations crossed an unstable stretch
+        if (a == 0.0 or round(a, 12) in stable) and round(b, 12) in stable:
+            out.append(f"the tangent stiffness had negative pivots in the iterations from load factor "
+                       f"{a:.4f} to {b:.4f} between stable states: a limit point (snap-through) was "
+                       f"probably jumped; {advice}")
+            break
+    return out
+
+
+def observe(problem, state, lam):
+    """``problem.observe(state, lam)``, or None when the problem records nothing."""
+    look = getattr(problem, "observe", None)
+    return None if look is None else look(state, lam)
+
+
 def newton_increment(problem, state, lam, settings: NewtonSettings) -> _Step:
     """Iterate at fixed load factor ``lam`` from ``state``."""
     history = []
@@ -212,7 +308,7 @@ def newton_increment(problem, state, lam, settings: NewtonSettings) -> _Step:
         if not math.isfinite(ratio):
             return _Step(state, False, it, ratio, "non-finite", history=history)
         if is_converged(ratio * ref, ref, settings.tolerance, roundoff):
-            return _Step(state, True, it, ratio, history=history, indefinite=indefinite)
+            return _Step(state, True, it, ratio, history=history, indefinite=indefinite, tangent=K)
         if it == settings.max_iterations:
             break
         try:
@@ -221,9 +317,7 @@ def newton_increment(problem, state, lam, settings: NewtonSettings) -> _Step:
             return _Step(state, False, it, ratio, "mechanism", mechanism=exc, history=history)
         if not np.all(np.isfinite(du)):
             return _Step(state, False, it, ratio, "non-finite", history=history)
-        # du = -K^-1 r, so du . r = -r K^-1 r < 0 for a positive definite K: a
-        # positive value proves an indefinite tangent (an unstable state)
-        indefinite |= float(du @ r) > INDEFINITE_SLOPE * float(np.linalg.norm(du) * np.linalg.norm(r))
+        indefinite |= indefinite_iterate(problem, K, du, r)
         state, r, ref, K, ratio = _line_search(problem, state, du, r, ratio, lam, settings)
     return _Step(state, False, settings.max_iterations, ratio, "max-iterations", history=history)
 
@@ -254,7 +348,17 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
     cuts = 0
     all_cuts = 0
     last_ratio = 0.0
-    warnings: list[str] = []
+    pivots: list = []
+    path: list = []
+    jumped: list = []
+
+    def finish():
+        # one warning per kind for the whole path, logged once
+        warnings = stability_warnings(done, pivots, jumped, hasattr(problem, "inertia"))
+        for w in warnings:
+            log.warning(w)
+        return tuple(warnings), tuple(pivots), tuple(path)
+
     while lam < 1.0:
         target = min(1.0, lam + step)
         if 1.0 - target < 1e-12:
@@ -265,13 +369,14 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
         history.extend(result.history)
         if result.converged:
             if result.indefinite:
-                warnings.append(f"the tangent stiffness was not positive definite on the way from load "
-                                f"factor {lam:.4f} to {target:.4f}: a limit point (snap-through, buckling) "
-                                f"may have been passed; check the path by arc length")
-                log.warning(warnings[-1])
+                jumped.append((lam, target))
             state, lam, last_ratio = result.state, target, result.ratio
             problem.commit(state)
             done.append(lam)
+            # the stability of the converged state: one more factorisation
+            # (of the tangent at the converged state) per converged increment
+            pivots.append(negative_pivots(problem, result.tangent))
+            path.append(observe(problem, state, lam))
             cuts = 0
             if progress is not None:
                 progress(lam, total_iterations)
@@ -301,9 +406,11 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
             else:
                 status, msg = "max-cuts", (f"no convergence beyond load factor {lam:.4f} after "
                                            f"{settings.max_cuts} increment cuts")
+            warnings, pivots_, path_ = finish()
             return PathOutcome(state, False, lam, total_iterations, last_ratio, status,
                                msg + f"; last converged load factor {lam:.4f}", tuple(history), tuple(done),
-                               tuple(warnings))
+                               warnings, pivots_, path_)
         step *= 0.5
+    warnings, pivots_, path_ = finish()
     return PathOutcome(state, True, 1.0, total_iterations, last_ratio, "converged",
-                       "converged", tuple(history), tuple(done), tuple(warnings))
+                       "converged", tuple(history), tuple(done), warnings, pivots_, path_)

@@ -23,6 +23,7 @@ from ..assembly import Assembler, Evaluation, State, initial_state
 from ..errors import MechanismError
 from ..model import LoadVectors, Model
 from . import linear
+from .arclength import follow_arc_length
 from .newton import NewtonSettings, PathOutcome, follow_load_path
 
 #: strain beyond which a member's strain is flagged as implausible (3 %:
@@ -71,6 +72,11 @@ class StaticProblem:
         self.failure_reason = ""
         self._solved = False        # a linear solve since the last commit
         self.last_increment_solved = False
+        # the last factorisation and the tangent values it was made of: the
+        # stability count and the arc-length predictor reuse it
+        self._factorized = None
+        # nodes whose displacements every converged step records
+        self.track = np.array([model.node_index[n] for n in model.spec.analysis.track], dtype=np.int64)
 
     # -- the problem interface -------------------------------------------------
     def initial_state(self) -> State:
@@ -163,6 +169,17 @@ class StaticProblem:
         self.last_increment_solved, self._solved = self._solved, False
         self.failure_reason = ""
 
+    def _factorize(self, K) -> linear.Factorization:
+        """The factorisation of ``K``, made once for the same tangent values."""
+        last = self._factorized
+        if last is not None and last[0].shape == K.data.shape and np.array_equal(last[1], K.indices) \
+                and np.array_equal(last[0], K.data) and np.array_equal(last[2], K.indptr):
+            return last[3]
+        self._factorized = None
+        fact = self.solver.factorize(K)
+        self._factorized = (K.data.copy(), K.indices.copy(), K.indptr.copy(), fact)
+        return fact
+
     def solve_linear(self, K, r):
         self._solved = True
         if K is None:   # the evaluation failed (see evaluate): a non-finite step fails too
@@ -170,12 +187,56 @@ class StaticProblem:
         if K.shape[0] == 0:
             return np.zeros(0)
         try:
-            return self.solver.factorize(K).solve(r)
+            return self._factorize(K).solve(r)
         except linear.SingularMatrixError as exc:
             eqs = getattr(exc, "equations", None)
             if eqs is None or len(eqs) == 0:
                 eqs = linear.find_unrestrained(K)
             raise MechanismError([self.model.describe_dof(int(self.free[e])) for e in eqs]) from None
+
+    def inertia(self, K, factorized_only: bool = False):
+        """Eigenvalue sign counts ``(positive, negative, zero)`` of the tangent.
+
+        Of its symmetric part for beam models (spin variables make the
+        tangent unsymmetric away from equilibrium; at an equilibrium the
+        symmetric part is the second variation of the energy).  Read from
+        the pivots of the factorisation already made of this ``K`` when
+        there is one, else one more factorisation (see
+        :meth:`cablefe.solvers.linear.LinearSolver.inertia`).  None when it
+        cannot be counted (a singular symmetric part: neutral stability),
+        and with ``factorized_only`` when the count would need another
+        factorisation (an unsymmetric iterate's tangent: the driver then
+        uses its descent test).
+        """
+        if K is None:
+            return None
+        if K.shape[0] == 0:
+            return (0, 0, 0)
+        last = self._factorized
+        fact = last[3] if last is not None and last[0].shape == K.data.shape \
+            and np.array_equal(last[0], K.data) else None
+        try:
+            if factorized_only:
+                return None if fact is None else fact.inertia()
+            if self.model.has_rotations:
+                return self.solver.inertia(K, fact)
+            return self.solver.inertia(K, self._factorize(K))
+        except linear.SingularMatrixError:
+            return None
+
+    def observe(self, state: State, lam: float):
+        """``(λ, node indices, (k, 3) displacements in m)`` of a converged step.
+
+        The tracked nodes (``[analysis] track``) and the node of largest
+        displacement at this step.
+        """
+        disp = state.positions - self.model.coordinates
+        nodes = self.track
+        if len(disp):
+            biggest = int(np.argmax(np.einsum("ij,ij->i", disp, disp)))
+            if biggest not in nodes:
+                nodes = np.append(nodes, biggest)
+        return float(lam), nodes, disp[nodes].copy()
 
 
 @dataclass(frozen=True)
@@ -409,8 +470,13 @@ def _hidden_mechanism(problem: StaticProblem, state: State, lam: float) -> str:
 def solve_combination(model: Model, name: str, factors: Mapping[str, float],
                       settings: NewtonSettings | None = None,
                       linear_solver: str | linear.LinearSolver | None = None,
-                      progress=None, assembler: Assembler | None = None) -> StaticResult:
+                      progress=None, assembler: Assembler | None = None,
+                      control: str | None = None) -> StaticResult:
     """Solve one combination of load cases nonlinearly from the model's geometry.
+
+    ``control`` ("load" or "arc-length") overrides ``[analysis] control``:
+    form-finding solves its trial shapes by load control whatever the
+    analysis asks for.
 
     ``assembler`` and a :class:`~cablefe.solvers.linear.LinearSolver` object
     as ``linear_solver`` may be passed to share their per-pattern work
@@ -431,7 +497,18 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
     if failure:
         log.warning("%s: %s", name, failure)
         return _unsolved(problem, name, factors, "invalid-length", failure)
-    outcome = follow_load_path(problem, settings, progress)
+    if (control or a.control) == "arc-length":
+        # through limit points to λ = 1; only the final state is kept
+        # spherical (ψ = 1): a shaped structure's displacements may stand
+        # still while λ moves, which the cylinder cannot pass
+        outcome = follow_arc_length(problem, settings, progress=progress, keep_states=False, load_weight=1.0)
+        if outcome.status == "no-load":
+            # nothing moves at the start (no load, a structure drawn in its
+            # equilibrium): no arc length can be set, and no limit point is near
+            log.info("%s: the load does not move the structure; load control instead of arc length", name)
+            outcome = follow_load_path(problem, settings, progress)
+    else:
+        outcome = follow_load_path(problem, settings, progress)
     lam = outcome.load_factor
     ev = problem.assembler.evaluate(outcome.state, loads, lam, want_tangent=False)
     reactions = _reactions(problem, ev, lam)

@@ -1,0 +1,269 @@
+"""Stability measured by the inertia of the tangent (negative pivots).
+
+Outside references: Sylvester's law of inertia checked against
+numpy.linalg.eigvalsh (LAPACK) on random symmetric indefinite matrices, and
+the Euler loads of a pinned column (Timoshenko & Gere 1961, Theory of
+Elastic Stability, ch. 2).
+"""
+import json
+
+import numpy as np
+import pytest
+import scipy.sparse as sp
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+import cablefe
+from cablefe.cli import main
+from cablefe.solvers import linear
+from cablefe.solvers.linear import dense_inertia, make_linear_solver
+from cablefe.spec import AnalysisSettings, Material, Member, NodalLoad, Section
+from conftest import make_spec
+
+BACKENDS = linear.available_backends()
+
+
+def random_symmetric(n, negative, seed, density):
+    """Symmetric matrix with ``negative`` eigenvalues in [-10, -0.1] and the
+    others in [0.1, 10], on a random sparse-ish pattern.
+
+    Q is a product of random Givens rotations on a few index pairs, so the
+    matrix stays sparse for a low ``density`` and dense for a high one; the
+    eigenvalues are exactly those put on the diagonal (an orthogonal
+    similarity), far enough from zero (cond <= 100) that no floating-point
+    doubt about a sign can arise.
+    """
+    rng = np.random.default_rng(seed)
+    lam = rng.uniform(0.1, 10.0, n)
+    lam[rng.permutation(n)[:negative]] *= -1.0
+    A = np.diag(lam)
+    for _ in range(int(density * n * n) if n > 1 else 0):
+        i, j = rng.choice(n, 2, replace=False)
+        c, s = np.cos(t := rng.uniform(0, 2 * np.pi)), np.sin(t)
+        G = np.eye(n)
+        G[[i, i, j, j], [i, j, i, j]] = c, -s, s, c
+        A = G @ A @ G.T
+    A = 0.5 * (A + A.T)
+    A[np.abs(A) < 1e-13] = 0.0
+    return sp.csr_matrix(A)
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+@settings(max_examples=25, deadline=None)
+@given(n=st.integers(1, 40), frac=st.floats(0.0, 1.0), density=st.floats(0.01, 0.5),
+       seed=st.integers(0, 10**6))
+def test_inertia_matches_eigenvalues(backend, n, frac, density, seed):
+    negative = int(round(frac * n))
+    K = random_symmetric(n, negative, seed, density)
+    fact = make_linear_solver(backend).factorize(K)
+    # source: Sylvester's law of inertia; eigenvalue signs by
+    # numpy.linalg.eigvalsh (LAPACK dsyevd).  |eigenvalue| >= 0.1 >> the
+    # solver's 1e-10 backward error: the signs are exact
+    lam = np.linalg.eigvalsh(K.toarray())
+    expected = (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
+    assert expected[1] == negative
+    assert fact.inertia() == expected
+    assert make_linear_solver(backend).inertia(K) == expected
+
+
+@settings(max_examples=15, deadline=None)
+@given(n=st.integers(2, 30), frac=st.floats(0.0, 1.0), seed=st.integers(0, 10**6),
+       skew=st.floats(0.0, 2.0))
+def test_inertia_of_the_symmetric_part(n, frac, seed, skew):
+    S = random_symmetric(n, int(round(frac * n)), seed, 0.3)
+    W = np.random.default_rng(seed + 1).standard_normal((n, n))
+    K = sp.csr_matrix(S.toarray() + skew * (W - W.T))     # symmetric part S
+    # source: numpy.linalg.eigvalsh (LAPACK) of the symmetric part
+    lam = np.linalg.eigvalsh(S.toarray())
+    assert make_linear_solver("superlu", symmetric=False).inertia(K) == \
+        (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
+
+
+@settings(max_examples=15, deadline=None)
+@given(n=st.integers(1, 30), frac=st.floats(0.0, 1.0), seed=st.integers(0, 10**6))
+def test_dense_ldl_inertia(n, frac, seed):
+    K = random_symmetric(n, int(round(frac * n)), seed, 0.5).toarray()
+    # source: numpy.linalg.eigvalsh (LAPACK dsyevd); Sylvester's law
+    lam = np.linalg.eigvalsh(K)
+    assert dense_inertia(K) == (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
+
+
+def tiny_diagonal_pairs(n_pairs, seed, tiny=1e-14):
+    """[[tiny, 1], [1, tiny]] blocks, symmetrically permuted: eigenvalues
+    tiny +- 1, yet every diagonal pivot is tiny (SuperLU's diagonal-pivot
+    factorization is rejected and row interchanges take over)."""
+    A = sp.block_diag([np.array([[tiny, 1.0], [1.0, tiny]])] * n_pairs, format="csr")
+    p = np.random.default_rng(seed).permutation(2 * n_pairs)
+    return A[p][:, p].tocsr()
+
+
+@pytest.mark.parametrize("dense_max", [linear.DENSE_INERTIA_MAX, 0])
+def test_inertia_after_row_interchanges(monkeypatch, dense_max):
+    # both fallbacks: dense LDL^T, and (dense_max = 0) other symmetric
+    # orderings, whose probe must then refuse the tiny pivots: no count is
+    # better than a wrong one
+    monkeypatch.setattr(linear, "DENSE_INERTIA_MAX", dense_max)
+    K = tiny_diagonal_pairs(20, seed=3)
+    fact = make_linear_solver("superlu").factorize(K)
+    assert fact.backend == "superlu-pivoting"
+    # source: eigenvalues tiny +- 1 of each block; numpy.linalg.eigvalsh
+    lam = np.linalg.eigvalsh(K.toarray())
+    expected = (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
+    assert expected == (20, 20, 0)
+    assert fact.inertia() == (expected if dense_max else None)
+
+
+@settings(max_examples=10, deadline=None)
+@given(n=st.integers(2, 60), frac=st.floats(0.0, 1.0), seed=st.integers(0, 10**6))
+def test_inertia_by_other_orderings(n, frac, seed):
+    # the fallback for matrices too large for a dense LDL^T: symmetric
+    # SuperLU with other orderings.  On a strictly diagonally dominant
+    # matrix every symmetric ordering factors stably without pivoting
+    # (dominance is kept by elimination; Golub & Van Loan 2013, Matrix
+    # Computations, sec. 4.1, from memory), so each must give the count.
+    rng = np.random.default_rng(seed)
+    B = sp.random(n, n, density=0.2, random_state=rng, format="csr")
+    O = sp.triu(B, 1)
+    O = O + O.T
+    sign = np.ones(n)
+    sign[rng.permutation(n)[:int(round(frac * n))]] = -1.0
+    K = (O + sp.diags(sign * (np.asarray(abs(O).sum(axis=1)).ravel() + 1.0))).tocsr()
+    fact = make_linear_solver("superlu").factorize(K)
+    # source: numpy.linalg.eigvalsh (LAPACK dsyevd); Sylvester's law
+    lam = np.linalg.eigvalsh(K.toarray())
+    expected = (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
+    old = linear.DENSE_INERTIA_MAX
+    try:
+        linear.DENSE_INERTIA_MAX = 0
+        assert linear._fallback_inertia(fact._system, 1e-10) == expected
+    finally:
+        linear.DENSE_INERTIA_MAX = old
+
+
+# ---------------------------------------------------------------------------
+# a pinned column: stable below Euler's load, unstable beyond it
+# ---------------------------------------------------------------------------
+
+E, G = 2.1e11, 8.1e10
+A_, IY, IZ, J = 1.2e-2, 8.0e-5, 2.5e-5, 1.5e-6    # Iy / Iz = 3.2: strong axis at 3.2 Pe
+LENGTH = 5.0
+P_EULER = np.pi**2 * E * IZ / LENGTH**2            # weak axis, first mode
+
+
+def column(P, n=8, increments=8):
+    """A straight pinned column along x, compressed by P at its top."""
+    spec = make_spec(
+        {"A": (0, 0, 0), "B": (LENGTH, 0, 0)},
+        [Member("C", "beam", ("A", "B"), "s", divide=n)],
+        # pin at A (and its twist), roller at B: only axial movement
+        {"A": (True, True, True, True, False, False), "B": (False, True, True, False, False, False)},
+        loads=[NodalLoad("P", "B", (-P, 0.0, 0.0))],
+        materials={"steel": Material("steel", E=E, G=G)},
+        sections={"s": Section("s", "steel", area=A_, Iy=IY, Iz=IZ, J=J)},
+        analysis=AnalysisSettings(increments=increments, tolerance=1e-9, max_iterations=30))
+    res = cablefe.solve(cablefe.build_model(spec))
+    return res.items[0]
+
+
+def euler_modes_below(P):
+    """Number of buckling loads of the pinned column below P.
+
+    source: Euler; P_n = n^2 pi^2 E I / L^2 for a pinned column about each
+    principal axis (Timoshenko & Gere 1961, Theory of Elastic Stability,
+    ch. 2).  The model's loads differ from these by the 8-element mesh
+    (~0.1 % for n = 1, ~1 % for n = 2, from the O(h^2) error of cubic
+    elements) and the shortening P / EA (< 0.3 %); the loads tested below
+    keep more than 5 % from every P_n.
+    """
+    n = np.arange(1, 5)
+    loads = np.concatenate([n**2 * np.pi**2 * E * IZ / LENGTH**2, n**2 * np.pi**2 * E * IY / LENGTH**2])
+    assert np.min(np.abs(loads / P - 1.0)) > 0.05
+    return int(np.sum(loads < P))
+
+
+@pytest.mark.parametrize("ratio, unstable", [(0.9, 0), (1.3, 1), (3.5, 2)])
+def test_pinned_column_beyond_euler_load_is_unstable(ratio, unstable, verify):
+    P = ratio * P_EULER
+    res = column(P)
+    o = res.outcome
+    # the straight state is an equilibrium at every load: load control
+    # follows it, and only the pivot count tells that it has buckled
+    assert res.converged
+    assert euler_modes_below(P) == unstable
+    verify.check(f"pinned column (8 beam elements) at {ratio} x Euler load: negative pivots of the "
+                 "tangent = buckling loads P_n = n^2 pi^2 EI/L^2 (both axes) below the load",
+                 "Timoshenko & Gere 1961, Theory of Elastic Stability, ch. 2",
+                 o.negative_pivots[-1], unstable)
+    # every converged step counts the Euler loads below its own load
+    for lam, n in zip(o.increments, o.negative_pivots):
+        if min(abs(lam * P / (k * P_EULER) - 1.0) for k in (1, 3.2, 4)) > 0.05:
+            assert n == euler_modes_below(lam * P)
+    warned = [w for w in o.warnings if "unstable equilibrium" in w]
+    if unstable:
+        # the warning names the first converged load factor beyond Euler's load
+        first = next(lam for lam, n in zip(o.increments, o.negative_pivots) if n)
+        assert f"load factor {first:.4f}" in warned[0]
+        before = max([lam for lam in o.increments if lam < first], default=0.0)
+        # source: Timoshenko & Gere 1961, ch. 2 (Euler load, weak axis)
+        assert before * P < P_EULER * 1.05 and first * P > P_EULER * 0.95
+    else:
+        assert warned == []
+
+
+COLUMN_CASE = """
+title = "pinned column"
+[units]
+length = "m"
+force = "N"
+[materials.steel]
+E = "210 GPa"
+G = "81 GPa"
+[sections.s]
+material = "steel"
+area = "0.012 m^2"
+Iy = "8.0e-5 m^4"
+Iz = "2.5e-5 m^4"
+J = "1.5e-6 m^4"
+[nodes]
+A = [0, 0, 0]
+B = [5, 0, 0]
+[supports]
+A = "x y z rx"
+B = "y z"
+[[members]]
+id = "C"
+type = "beam"
+nodes = ["A", "B"]
+section = "s"
+divide = 8
+[[loads]]
+case = "push"
+node = "B"
+force = [{force}, 0, 0]
+[analysis]
+increments = 4
+tolerance = 1e-9
+track = ["C.4"]
+"""
+
+
+@pytest.mark.parametrize("ratio", [0.9, 1.3])
+def test_column_stability_in_results_and_summary(tmp_path, capsys, ratio):
+    case = tmp_path / "column.toml"
+    case.write_text(COLUMN_CASE.format(force=-ratio * P_EULER))
+    out = tmp_path / "out"
+    assert main(["solve", str(case), "-o", str(out)]) == 0
+    text = capsys.readouterr().out
+    res = json.loads((out / "results.json").read_text())["results"]["push"]
+    # source: Euler load of the pinned column (Timoshenko & Gere 1961, ch. 2)
+    if ratio > 1:
+        assert res["stability"] == {"negative_pivots": 1, "stable": False}
+        assert "UNSTABLE (1 negative pivot" in text
+        assert any("unstable equilibrium" in w and "load factor" in w for w in res["warnings"])
+    else:
+        assert res["stability"] == {"negative_pivots": 0, "stable": True}
+        assert "stability: stable" in text
+        assert res["warnings"] == []
+    # one path entry per converged step, with the tracked mid-height node
+    assert [e["load_factor"] for e in res["path"]][-1] == 1.0
+    assert all("C.4" in e["displacements"] for e in res["path"])
