@@ -184,7 +184,7 @@ def _shape(case_path, shaped_path, solver=None) -> bool:
                   f"{t.reached / u.length_scale:>12.6g} {t.miss / u.length_scale:>10.2e}")
     print(f"  re-solved under the permanent loads it moves at most "
           f"{_fmt(found.largest_movement / u.length_scale, u.length)}")
-    print(f"wrote {written[0]}, {written[1]}")
+    print(f"wrote {', '.join(str(p) for p in written)}")
     return True
 
 
