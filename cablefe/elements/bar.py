@@ -11,6 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import Family, register
+
 NODE_DOFS = 3
 
 
@@ -104,3 +106,21 @@ def mass_matrix(length, mass_per_length, lumped=False) -> np.ndarray:
     total = np.asarray(mass_per_length, dtype=float) * np.asarray(length, dtype=float)
     pattern = np.diag([0.5, 0.5]) if lumped else np.array([[2.0, 1.0], [1.0, 2.0]]) / 6.0
     return total[:, None, None] * np.kron(pattern, np.eye(3))[None]
+
+
+# -- registration ------------------------------------------------------------------
+
+def _evaluate(table, state, loads, lam, want_tangent, guess):
+    """A thermal strain e stretches the stress-free length to L0 (1 + e)."""
+    props = table.props
+    strain = lam * loads.strain[table.family]
+    return response(state.positions[table.nodes[:, 0]], state.positions[table.nodes[:, 1]],
+                    props["unstressed_length"] * (1.0 + strain), props["EA"],
+                    props["tension_only"], want_tangent)
+
+
+def _mass(table, own, added, lumped, frames):
+    return mass_matrix(table.props["unstressed_length"], own + added, lumped)
+
+
+register(Family("bar", _evaluate, _mass))

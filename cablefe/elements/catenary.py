@@ -45,6 +45,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import Family, register
+
 logger = logging.getLogger(__name__)
 
 NODE_DOFS = 3
@@ -848,3 +850,39 @@ def mass_matrix(length, mass_per_length, lumped=False) -> np.ndarray:
     """
     from .bar import mass_matrix as straight
     return straight(length, mass_per_length, lumped)
+
+
+# -- registration ------------------------------------------------------------------
+
+def cable_inputs(table, loads, lam: float) -> tuple[np.ndarray, np.ndarray]:
+    """Stress-free length (m) and weight per unit stress-free length (N/m) of
+    the catenary elements at load factor ``lam``.
+
+    A thermal strain e stretches the stress-free length to ``L0 (1 + e)``
+    but leaves the mass alone: the weight per unit of the stretched length
+    is ``w0 / (1 + e)``, so the element weighs ``w0 L0`` whatever the
+    temperature (Irvine 1981, Cable Structures, sec. 1.3, thermal effects).
+    """
+    strain = lam * loads.strain[table.family]
+    stretch = 1.0 + strain
+    return table.props["unstressed_length"] * stretch, lam * loads.weight[table.family] / stretch
+
+
+def _evaluate(table, state, loads, lam, want_tangent, guess):
+    L0, weight = cable_inputs(table, loads, lam)
+    # an unconverged inner solve is marked in ``converged`` and fails the
+    # analysis step (solvers.static), so it is not logged here
+    return response(state.positions[table.nodes[:, 0]], state.positions[table.nodes[:, 1]],
+                    L0, table.props["EA"], weight, guess=guess, want_tangent=want_tangent, warn=False)
+
+
+def _mass(table, own, added, lumped, frames):
+    return mass_matrix(table.props["unstressed_length"], own + added, lumped)
+
+
+def _warm_start(r):
+    """The end forces of a solved state start the next inner solve."""
+    return (r.H, r.V)
+
+
+register(Family("cable", _evaluate, _mass, _warm_start))
