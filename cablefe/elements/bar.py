@@ -71,16 +71,34 @@ def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True
     f = np.concatenate([-N[:, None] * e, N[:, None] * e], axis=1)
     K = None
     if want_tangent:
-        eet = np.einsum("ni,nj->nij", e, e)
-        k_elastic = np.where(slack, 0.0, EA / L0)[:, None, None] * eet
-        k_geometric = (N / L_safe)[:, None, None] * (np.eye(3)[None] - eet)
-        k = k_elastic + k_geometric
-        K = np.empty((len(L), 6, 6))
-        K[:, :3, :3] = k
-        K[:, 3:, 3:] = k
-        K[:, :3, 3:] = -k
-        K[:, 3:, :3] = -k
+        K = two_node_matrix(tie_stiffness(e, np.where(slack, 0.0, EA / L0), N / L_safe))
     return BarResponse(force=f, tangent=K, tension=N, length=L, slack=slack)
+
+
+def tie_stiffness(e, axial, geometric):
+    """Tangent (n, 3, 3) of straight ties: ``axial e e^T + geometric (I - e e^T)``.
+
+    Parameters
+    ----------
+    e : (n, 3) unit vectors from i to j
+    axial : (n,) elastic stiffness along the tie, EA / L0, N/m (0 when slack)
+    geometric : (n,) stiffness across it from the tension, N / L, N/m
+
+    The second term is the geometric stiffness of a tie of tension N turning
+    about its end.  Bars and weightless taut catenaries share this tangent.
+    """
+    eet = np.einsum("ni,nj->nij", e, e)
+    return axial[:, None, None] * eet + geometric[:, None, None] * (np.eye(3)[None] - eet)
+
+
+def two_node_matrix(k):
+    """(n, 6, 6) element matrices ``[[k, -k], [-k, k]]`` of the (n, 3, 3) blocks ``k``."""
+    K = np.empty((k.shape[0], 6, 6))
+    K[:, :3, :3] = k
+    K[:, 3:, 3:] = k
+    K[:, :3, 3:] = -k
+    K[:, 3:, :3] = -k
+    return K
 
 
 def mass_matrix(length, mass_per_length, lumped=False) -> np.ndarray:

@@ -13,7 +13,7 @@ import numpy as np
 
 from ..errors import CaseError
 from ..spec import CaseSpec
-from .geometry import _beam_reference, _default_up, _hanging_start, local_origin
+from .geometry import _beam_reference, _default_up, interior_start, local_origin
 from .loads import _build_loads
 from .report import model_warnings, report_deck_nodes
 from .tables import FAMILIES, ElementTable, MemberInfo, Model
@@ -77,21 +77,15 @@ def build_model(spec: CaseSpec) -> Model:
         if chord <= 0.0:
             raise CaseError(f"{key}.nodes", f'zero length: nodes "{a}" and "{b}" coincide')
         n = int(mem.divide)
-        interior = mem.interior
         chain = [index[a]]
-        hanging = None if interior is not None else _hanging_start(mem, xa, xb, weight, mat.E * sec.area)
+        start = interior_start(mem, xa, xb, origin, weight, mat.E * sec.area)
         for k in range(1, n):
             nid = f"{mem.id}.{k}"
             if nid in index:
                 raise CaseError(f"{key}.divide", f'interior node "{nid}" clashes with a node of that name')
             index[nid] = len(node_ids)
             node_ids.append(nid)
-            if interior is not None:
-                coords.append(tuple(np.subtract(interior[k - 1], origin).tolist()))
-            elif hanging is not None:
-                coords.append(tuple(hanging[k - 1]))
-            else:
-                coords.append(tuple(xa + (xb - xa) * k / n))
+            coords.append(tuple(start[k - 1]))
             chain.append(index[nid])
         chain.append(index[b])
         family = mem.type

@@ -63,6 +63,25 @@ def local_origin(site: np.ndarray) -> np.ndarray:
     return np.round(0.5 * (lo + hi) / g) * g + 0.0   # + 0.0: no negative zeros
 
 
+def interior_start(mem, xa, xb, origin, weight, EA) -> list:
+    """Start positions (local, m) of the ``divide - 1`` interior nodes of a member.
+
+    The one rule for where interior nodes start: the member's ``interior``
+    points when the case gives them (site coordinates, made local with
+    ``origin``); else, for a divided cable or bar longer than its chord
+    (``length0``), on the hanging chain of :func:`_hanging_start`; else
+    evenly on the straight chord from ``xa`` to ``xb`` (local, m).
+    ``weight`` is per unstressed length (N/m), ``EA`` the axial stiffness (N).
+    """
+    n = int(mem.divide)
+    if mem.interior is not None:
+        return [np.subtract(point, origin).tolist() for point in mem.interior]
+    hanging = _hanging_start(mem, xa, xb, weight, EA)
+    if hanging is not None:
+        return list(hanging)
+    return [xa + (xb - xa) * k / n for k in range(1, n)]
+
+
 def _hanging_start(mem, xa, xb, weight, EA) -> np.ndarray | None:
     """Starting points (divide - 1, 3) for the interior nodes of a divided
     cable or bar whose unstressed length exceeds its chord; None otherwise.
