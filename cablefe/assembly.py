@@ -210,17 +210,17 @@ def assemble_mass(model: Model, lumped: bool = False, extra_per_length: Mapping[
     """
     ndof = model.ndof
     rows, cols, vals = [], [], []
-    for name, t in model.families.items():
-        if not len(t):
+    for name, table in model.families.items():
+        if not len(table):
             continue
-        own = t.props["weight"] / gravity
-        added = (np.zeros(len(t)) if extra_per_length is None
-                 else extra_per_length.get(name, np.zeros(len(t))))
-        Me = family(name).mass(t, own, added, lumped, beam_frames)
-        k = t.dofs.shape[1]
-        rows.append(np.repeat(t.dofs, k, axis=1).ravel())
-        cols.append(np.tile(t.dofs, (1, k)).ravel())
-        vals.append(Me.ravel())
+        own = table.props["weight"] / gravity
+        added = (np.zeros(len(table)) if extra_per_length is None
+                 else extra_per_length.get(name, np.zeros(len(table))))
+        element_mass = family(name).mass(table, own, added, lumped, beam_frames)
+        k = table.dofs.shape[1]
+        rows.append(np.repeat(table.dofs, k, axis=1).ravel())
+        cols.append(np.tile(table.dofs, (1, k)).ravel())
+        vals.append(element_mass.ravel())
     if node_mass is not None and np.any(node_mass):
         g = model.dof[:, :3]
         rows.append(g.ravel())
@@ -228,7 +228,5 @@ def assemble_mass(model: Model, lumped: bool = False, extra_per_length: Mapping[
         vals.append(np.repeat(np.asarray(node_mass, dtype=float), 3))
     if not rows:
         return sp.csr_matrix((ndof, ndof))
-    r = np.concatenate(rows)
-    c = np.concatenate(cols)
-    v = np.concatenate(vals)
-    return sp.coo_matrix((v, (r, c)), shape=(ndof, ndof)).tocsr()
+    return sp.coo_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                         shape=(ndof, ndof)).tocsr()

@@ -54,7 +54,7 @@ def build_model(spec: CaseSpec) -> Model:
     reference = spec.beam_reference
 
     # -- members and their elements -----------------------------------------
-    per_family: dict[str, dict[str, list]] = {f: {"nodes": [], "member": [], "L0": [], "EA": [],
+    columns_of: dict[str, dict[str, list]] = {f: {"nodes": [], "member": [], "L0": [], "EA": [],
                                                   "weight": [], "alpha": [], "tension_only": [],
                                                   "breaking_load": [], "E": [], "G": [], "A": [],
                                                   "Iy": [], "Iz": [], "J": [], "up": []}
@@ -99,7 +99,7 @@ def build_model(spec: CaseSpec) -> Model:
                 L0 = chord
         else:
             L0 = chord
-        t = per_family[family]
+        columns = columns_of[family]
         if family == "beam":
             # a beam is stress-free as drawn (or at its [beam_reference]
             # positions): each element's reference length is its own chord
@@ -112,41 +112,41 @@ def build_model(spec: CaseSpec) -> Model:
         else:
             pieces = np.full(n, L0 / n)
         for k in range(n):
-            t["nodes"].append((chain[k], chain[k + 1]))
-            t["member"].append(m_idx)
-            t["L0"].append(float(pieces[k]))
-            t["EA"].append(EA)
-            t["weight"].append(weight)
-            t["alpha"].append(mat.alpha)
-            t["tension_only"].append(bool(mem.tension_only) or family == "cable")
-            t["breaking_load"].append(np.nan if sec.breaking_load is None else sec.breaking_load)
+            columns["nodes"].append((chain[k], chain[k + 1]))
+            columns["member"].append(m_idx)
+            columns["L0"].append(float(pieces[k]))
+            columns["EA"].append(EA)
+            columns["weight"].append(weight)
+            columns["alpha"].append(mat.alpha)
+            columns["tension_only"].append(bool(mem.tension_only) or family == "cable")
+            columns["breaking_load"].append(np.nan if sec.breaking_load is None else sec.breaking_load)
             if family == "beam":
                 for name in ("Iy", "Iz", "J"):
                     if getattr(sec, name) is None:
                         raise CaseError(f"sections.{sec.name}.{name}",
                                         f"beam member {mem.id} needs {name} on its section")
-                t["E"].append(mat.E)
-                t["G"].append(mat.G)
-                t["A"].append(sec.area)
-                t["Iy"].append(sec.Iy)
-                t["Iz"].append(sec.Iz)
-                t["J"].append(sec.J)
-                t["up"].append(mem.up)
+                columns["E"].append(mat.E)
+                columns["G"].append(mat.G)
+                columns["A"].append(sec.area)
+                columns["Iy"].append(sec.Iy)
+                columns["Iz"].append(sec.Iz)
+                columns["J"].append(sec.J)
+                columns["up"].append(mem.up)
         infos[m_idx] = (family, n, tuple(node_ids[c] for c in chain), key)
-    members = _merge_straight(spec, per_family, straight, infos)
+    members = _merge_straight(spec, columns_of, straight, infos)
 
     coordinates = np.array(coords, dtype=float).reshape(-1, 3)
     nn = len(node_ids)
 
     # -- DOF numbering: rotations only where beams touch ---------------------
     rot = np.zeros(nn, dtype=bool)
-    bt = per_family["beam"]["nodes"]
+    bt = columns_of["beam"]["nodes"]
     if len(bt):
         rot[np.asarray(bt).ravel()] = True
     active = np.zeros(nn, dtype=bool)
     for f in FAMILIES:
-        if len(per_family[f]["nodes"]):
-            active[np.asarray(per_family[f]["nodes"]).ravel()] = True
+        if len(columns_of[f]["nodes"]):
+            active[np.asarray(columns_of[f]["nodes"]).ravel()] = True
     has = np.zeros((nn, 6), dtype=bool)
     has[:, :3] = True
     has[:, 3:] = rot[:, None]
@@ -173,26 +173,26 @@ def build_model(spec: CaseSpec) -> Model:
     # -- element tables --------------------------------------------------------
     families = {}
     for f in FAMILIES:
-        t = per_family[f]
-        nodes = np.asarray(t["nodes"], dtype=np.int64).reshape(-1, 2)
+        columns = columns_of[f]
+        nodes = np.asarray(columns["nodes"], dtype=np.int64).reshape(-1, 2)
         k = 6 if f == "beam" else 3
         dofs = np.concatenate([dof[nodes[:, 0], :k], dof[nodes[:, 1], :k]], axis=1) if len(nodes) \
             else np.zeros((0, 2 * k), dtype=np.int64)
         props = {
-            "EA": np.asarray(t["EA"], dtype=float),
-            "unstressed_length": np.asarray(t["L0"], dtype=float),
-            "weight": np.asarray(t["weight"], dtype=float),
-            "alpha": np.asarray(t["alpha"], dtype=float),
-            "tension_only": np.asarray(t["tension_only"], dtype=bool),
-            "breaking_load": np.asarray(t["breaking_load"], dtype=float),
+            "EA": np.asarray(columns["EA"], dtype=float),
+            "unstressed_length": np.asarray(columns["L0"], dtype=float),
+            "weight": np.asarray(columns["weight"], dtype=float),
+            "alpha": np.asarray(columns["alpha"], dtype=float),
+            "tension_only": np.asarray(columns["tension_only"], dtype=bool),
+            "breaking_load": np.asarray(columns["breaking_load"], dtype=float),
         }
         if f == "beam":
             from ..elements import beam
             for name in ("E", "G", "A", "Iy", "Iz", "J"):
-                props[name] = np.asarray(t[name], dtype=float)
+                props[name] = np.asarray(columns[name], dtype=float)
             xi, xj = reference_coordinates[nodes[:, 0]], reference_coordinates[nodes[:, 1]]
             props["length"] = np.linalg.norm(xj - xi, axis=1)
-            ups = t["up"]
+            ups = columns["up"]
             up = None
             if any(u is not None for u in ups):
                 up = np.array([u if u is not None else _default_up(a, b) for u, a, b in zip(ups, xi, xj)])
@@ -206,12 +206,12 @@ def build_model(spec: CaseSpec) -> Model:
                 ex = (xj - xi) / np.linalg.norm(xj - xi, axis=1)[:, None]
                 un = up / np.linalg.norm(up, axis=1)[:, None]
                 e = int(np.argmin(np.linalg.norm(np.cross(ex, un), axis=1)))
-                mem = spec.members[int(t["member"][e])]
-                key = mem.key or f"members[{int(t['member'][e])}]"
+                mem = spec.members[int(columns["member"][e])]
+                key = mem.key or f"members[{int(columns['member'][e])}]"
                 raise CaseError(f"{key}.up", f"up = {[float(v) for v in up[e]]} of beam member \"{mem.id}\" "
                                 f"is parallel to its axis {ex[e].round(6).tolist()}; it must fix the "
                                 "direction of the local z axis, so choose a vector across the member") from None
-        families[f] = ElementTable(f, nodes, np.asarray(t["member"], dtype=np.int64), dofs,
+        families[f] = ElementTable(f, nodes, np.asarray(columns["member"], dtype=np.int64), dofs,
                                    MappingProxyType(props))
 
     model = Model(spec=spec, node_ids=tuple(node_ids), node_index=MappingProxyType(index),
@@ -306,10 +306,10 @@ def _straight_members(spec: CaseSpec, index: Mapping[str, int], coords: list) ->
     return out
 
 
-def _merge_straight(spec: CaseSpec, per_family: dict, straight: dict, infos: dict) -> list:
+def _merge_straight(spec: CaseSpec, columns_of: dict, straight: dict, infos: dict) -> list:
     """Put the batched elements among the looped ones in member order.
 
-    ``per_family`` is updated in place (lists become arrays); returns the
+    ``columns_of`` is updated in place (lists become arrays); returns the
     :class:`MemberInfo` of every member.
     """
     first = np.zeros(len(spec.members), dtype=np.int64)
@@ -317,16 +317,16 @@ def _merge_straight(spec: CaseSpec, per_family: dict, straight: dict, infos: dic
         batch = straight.get(f)
         if batch is None:
             continue
-        t = per_family[f]
-        looped = len(t["member"])
+        columns = columns_of[f]
+        looped = len(columns["member"])
         for name in _STRAIGHT_FIELDS:
-            mine = np.asarray(t[name]).reshape((looped, 2) if name == "nodes" else (looped,))
-            t[name] = np.concatenate([mine.astype(batch[name].dtype), batch[name]])
-        order = np.argsort(t["member"], kind="stable")   # elements of a member stay in order
+            mine = np.asarray(columns[name]).reshape((looped, 2) if name == "nodes" else (looped,))
+            columns[name] = np.concatenate([mine.astype(batch[name].dtype), batch[name]])
+        order = np.argsort(columns["member"], kind="stable")   # elements of a member stay in order
         for name in _STRAIGHT_FIELDS:
-            t[name] = t[name][order]
+            columns[name] = columns[name][order]
     for f in FAMILIES:
-        owner = np.asarray(per_family[f]["member"], dtype=np.int64)
+        owner = np.asarray(columns_of[f]["member"], dtype=np.int64)
         if owner.size:
             starts = np.flatnonzero(np.r_[True, owner[1:] != owner[:-1]])
             first[owner[starts]] = starts
