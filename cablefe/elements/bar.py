@@ -3,7 +3,11 @@
 Geometrically exact: the axial force follows the engineering strain of the
 unstressed length, ``N = EA (L - L0) / L0``, with L the current chord.  A
 ``tension_only`` element whose chord is shorter than ``L0`` is slack and
-carries nothing (zero force and zero stiffness).
+carries nothing (zero force and zero stiffness) -- unless given a
+``slack_stiffness`` ratio r > 0 (form-finding uses it while searching, never
+for a final equilibrium): a slack element then carries the small force
+``r EA (L - L0) / L0`` with stiffness ``r EA / L0``, so that a slack member
+does not make the structure a mechanism.
 """
 from __future__ import annotations
 
@@ -40,7 +44,8 @@ class BarResponse:
         return np.repeat(self.tension[:, None], 2, axis=1)
 
 
-def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True) -> BarResponse:
+def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True,
+             slack_stiffness=None) -> BarResponse:
     """Internal forces and tangent stiffness of straight bars.
 
     Parameters
@@ -50,6 +55,9 @@ def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True
     EA : (n,) axial stiffness, N
     tension_only : (n,) bool, optional
     want_tangent : bool
+    slack_stiffness : float or (n,) array, optional
+        Ratio of the stiffness kept by a slack tension-only bar (default 0:
+        none).  A regularisation for searching, not a physical property.
 
     Returns
     -------
@@ -67,11 +75,12 @@ def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True
     e = d / L_safe[:, None]
     N = EA * (L - L0) / L0
     slack = np.zeros(len(L), dtype=bool) if tension_only is None else (np.asarray(tension_only) & (N < 0.0))
-    N = np.where(slack, 0.0, N)
+    keep = 0.0 if slack_stiffness is None else np.broadcast_to(np.asarray(slack_stiffness, dtype=float), N.shape)
+    N = np.where(slack, keep * N, N)
     f = np.concatenate([-N[:, None] * e, N[:, None] * e], axis=1)
     K = None
     if want_tangent:
-        K = two_node_matrix(tie_stiffness(e, np.where(slack, 0.0, EA / L0), N / L_safe))
+        K = two_node_matrix(tie_stiffness(e, np.where(slack, keep * EA / L0, EA / L0), N / L_safe))
     return BarResponse(force=f, tangent=K, tension=N, length=L, slack=slack)
 
 
@@ -134,7 +143,7 @@ def _evaluate(table, state, loads, lam, want_tangent, guess):
     strain = lam * loads.strain[table.family]
     return response(state.positions[table.nodes[:, 0]], state.positions[table.nodes[:, 1]],
                     props["unstressed_length"] * (1.0 + strain), props["EA"],
-                    props["tension_only"], want_tangent)
+                    props["tension_only"], want_tangent, props.get("slack_stiffness"))
 
 
 def _mass(table, own, added, lumped, frames):
