@@ -13,7 +13,8 @@ from typing import Mapping
 import numpy as np
 import scipy.sparse as sp
 
-from .elements import bar, catenary
+from .elements import bar, catenary, family  # noqa: F401  (the kernel modules stay reachable here)
+from .elements.catenary import cable_inputs  # noqa: F401  (re-exported: results_io uses it)
 from .model import LoadVectors, Model
 
 ROTATION_FAMILIES = ("beam",)
@@ -55,20 +56,6 @@ def initial_state(model: Model) -> State:
         rot = (model.initial_rotations.copy() if model.initial_rotations is not None
                else np.broadcast_to(np.eye(3), (len(model.node_ids), 3, 3)).copy())
     return State(model.coordinates.copy(), rot)
-
-
-def cable_inputs(table, loads: LoadVectors, lam: float) -> tuple[np.ndarray, np.ndarray]:
-    """Stress-free length (m) and weight per unit stress-free length (N/m) of
-    the catenary elements at load factor ``lam``.
-
-    A thermal strain e stretches the stress-free length to ``L0 (1 + e)``
-    but leaves the mass alone: the weight per unit of the stretched length
-    is ``w0 / (1 + e)``, so the element weighs ``w0 L0`` whatever the
-    temperature (Irvine 1981, Cable Structures, sec. 1.3, thermal effects).
-    """
-    strain = lam * loads.strain["cable"]
-    stretch = 1.0 + strain
-    return table.props["unstressed_length"] * stretch, lam * loads.weight["cable"] / stretch
 
 
 def _unique_inverse(keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -151,48 +138,25 @@ class Assembler:
 
     # -- element evaluation ----------------------------------------------------
     def element_responses(self, state: State, loads: LoadVectors, lam: float,
-                          want_tangent: bool = True, remember: bool = False) -> dict:
-        out = {}
-        model = self.model
-        for f, table in model.families.items():
-            if not len(table):
-                continue
-            p = table.props
-            xi = state.positions[table.nodes[:, 0]]
-            xj = state.positions[table.nodes[:, 1]]
-            strain = lam * loads.strain[f]
-            if f == "bar":
-                out[f] = bar.response(xi, xj, p["unstressed_length"] * (1.0 + strain), p["EA"],
-                                      p["tension_only"], want_tangent, p.get("slack_stiffness"))
-            elif f == "cable":
-                L0, weight = cable_inputs(table, loads, lam)
-                # an unconverged inner solve is marked in r.converged and fails
-                # the analysis step (solvers.static), so it is not logged here
-                r = catenary.response(xi, xj, L0, p["EA"], weight, guess=self._guess.get(f),
-                                      want_tangent=want_tangent, warn=False)
-                if remember:
-                    self._guess[f] = (r.H, r.V)
-                out[f] = r
-            elif f == "beam":
-                from .elements import beam
-                Ri = state.rotations[table.nodes[:, 0]]
-                Rj = state.rotations[table.nodes[:, 1]]
-                # stress-free length from the reference geometry, not from
-                # the (possibly shaped, already bent) coordinates
-                out[f] = beam.response(xi, xj, Ri, Rj, p["frame0"], p["length"], p["E"], p["G"], p["A"],
-                                       p["Iy"], p["Iz"], p["J"], axial_strain=strain,
-                                       want_tangent=want_tangent)
-        return out
+                          want_tangent: bool = True) -> dict:
+        """Each non-empty family's response at ``state``, by family name.
+
+        Every family's kernel is looked up in the registry of
+        :mod:`cablefe.elements`, so a new family needs no change here.
+        """
+        return {name: family(name).evaluate(table, state, loads, lam, want_tangent, self._guess.get(name))
+                for name, table in self.model.families.items() if len(table)}
 
     def forget(self) -> None:
-        """Drop the catenary warm starts (before a new load path)."""
+        """Drop the warm starts (catenary end forces) before a new load path."""
         self._guess.clear()
 
     def remember(self, responses: Mapping[str, object]) -> None:
-        """Keep the catenary end forces as warm starts for the next call."""
-        r = responses.get("cable")
-        if r is not None:
-            self._guess["cable"] = (r.H, r.V)
+        """Keep what each family uses as a warm start for the next call."""
+        for name, response in responses.items():
+            keep = family(name).warm_start
+            if keep is not None:
+                self._guess[name] = keep(response)
 
     def evaluate(self, state: State, loads: LoadVectors, lam: float, want_tangent: bool = True) -> Evaluation:
         """Internal forces (all DOFs) and tangent (free DOFs) at ``state``."""
@@ -213,11 +177,6 @@ class Assembler:
             data = np.bincount(self._inverse, weights=vals, minlength=self.nnz)
             K = sp.csr_matrix((data, self.indices, self.indptr), shape=(self.nfree, self.nfree))
         return Evaluation(internal, magnitude, K, responses)
-
-    def local_blocks(self, state: State, loads: LoadVectors, lam: float = 1.0) -> dict:
-        """Per-element (force, tangent) arrays by family, for tests."""
-        return {f: (r.force, r.tangent) for f, r in
-                self.element_responses(state, loads, lam, True).items()}
 
 
 # -- mass -------------------------------------------------------------------------
@@ -249,30 +208,19 @@ def assemble_mass(model: Model, lumped: bool = False, extra_per_length: Mapping[
     -------
     scipy.sparse.csr_matrix
     """
-    from .elements import beam, catenary
     ndof = model.ndof
     rows, cols, vals = [], [], []
-    for f, t in model.families.items():
-        if not len(t):
+    for name, table in model.families.items():
+        if not len(table):
             continue
-        p = t.props
-        L0 = p["unstressed_length"]
-        own = p["weight"] / gravity
-        add = np.zeros(len(t)) if extra_per_length is None else extra_per_length.get(f, np.zeros(len(t)))
-        if f == "beam":
-            frames = p["frame0"] if beam_frames is None else beam_frames
-            # density times area is the own mass per length; rho I follows from it
-            rho = own / p["A"]
-            Me = beam.mass_matrix(frames, p["length"], own + add, rho * (p["Iy"] + p["Iz"]),
-                                  rho * p["Iy"], rho * p["Iz"])
-        elif f == "cable":
-            Me = catenary.mass_matrix(L0, own + add, lumped)
-        else:
-            Me = bar.mass_matrix(L0, own + add, lumped)
-        k = t.dofs.shape[1]
-        rows.append(np.repeat(t.dofs, k, axis=1).ravel())
-        cols.append(np.tile(t.dofs, (1, k)).ravel())
-        vals.append(Me.ravel())
+        own = table.props["weight"] / gravity
+        added = (np.zeros(len(table)) if extra_per_length is None
+                 else extra_per_length.get(name, np.zeros(len(table))))
+        element_mass = family(name).mass(table, own, added, lumped, beam_frames)
+        k = table.dofs.shape[1]
+        rows.append(np.repeat(table.dofs, k, axis=1).ravel())
+        cols.append(np.tile(table.dofs, (1, k)).ravel())
+        vals.append(element_mass.ravel())
     if node_mass is not None and np.any(node_mass):
         g = model.dof[:, :3]
         rows.append(g.ravel())
@@ -280,7 +228,5 @@ def assemble_mass(model: Model, lumped: bool = False, extra_per_length: Mapping[
         vals.append(np.repeat(np.asarray(node_mass, dtype=float), 3))
     if not rows:
         return sp.csr_matrix((ndof, ndof))
-    r = np.concatenate(rows)
-    c = np.concatenate(cols)
-    v = np.concatenate(vals)
-    return sp.coo_matrix((v, (r, c)), shape=(ndof, ndof)).tocsr()
+    return sp.coo_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                         shape=(ndof, ndof)).tocsr()

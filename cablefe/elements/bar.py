@@ -15,6 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import Family, register
+
 NODE_DOFS = 3
 
 
@@ -78,16 +80,34 @@ def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True
     f = np.concatenate([-N[:, None] * e, N[:, None] * e], axis=1)
     K = None
     if want_tangent:
-        eet = np.einsum("ni,nj->nij", e, e)
-        k_elastic = np.where(slack, keep * EA / L0, EA / L0)[:, None, None] * eet
-        k_geometric = (N / L_safe)[:, None, None] * (np.eye(3)[None] - eet)
-        k = k_elastic + k_geometric
-        K = np.empty((len(L), 6, 6))
-        K[:, :3, :3] = k
-        K[:, 3:, 3:] = k
-        K[:, :3, 3:] = -k
-        K[:, 3:, :3] = -k
+        K = two_node_matrix(tie_stiffness(e, np.where(slack, keep * EA / L0, EA / L0), N / L_safe))
     return BarResponse(force=f, tangent=K, tension=N, length=L, slack=slack)
+
+
+def tie_stiffness(e, axial, geometric):
+    """Tangent (n, 3, 3) of straight ties: ``axial e e^T + geometric (I - e e^T)``.
+
+    Parameters
+    ----------
+    e : (n, 3) unit vectors from i to j
+    axial : (n,) elastic stiffness along the tie, EA / L0, N/m (0 when slack)
+    geometric : (n,) stiffness across it from the tension, N / L, N/m
+
+    The second term is the geometric stiffness of a tie of tension N turning
+    about its end.  Bars and weightless taut catenaries share this tangent.
+    """
+    eet = np.einsum("ni,nj->nij", e, e)
+    return axial[:, None, None] * eet + geometric[:, None, None] * (np.eye(3)[None] - eet)
+
+
+def two_node_matrix(k):
+    """(n, 6, 6) element matrices ``[[k, -k], [-k, k]]`` of the (n, 3, 3) blocks ``k``."""
+    K = np.empty((k.shape[0], 6, 6))
+    K[:, :3, :3] = k
+    K[:, 3:, 3:] = k
+    K[:, :3, 3:] = -k
+    K[:, 3:, :3] = -k
+    return K
 
 
 def mass_matrix(length, mass_per_length, lumped=False) -> np.ndarray:
@@ -113,3 +133,21 @@ def mass_matrix(length, mass_per_length, lumped=False) -> np.ndarray:
     total = np.asarray(mass_per_length, dtype=float) * np.asarray(length, dtype=float)
     pattern = np.diag([0.5, 0.5]) if lumped else np.array([[2.0, 1.0], [1.0, 2.0]]) / 6.0
     return total[:, None, None] * np.kron(pattern, np.eye(3))[None]
+
+
+# -- registration ------------------------------------------------------------------
+
+def _evaluate(table, state, loads, lam, want_tangent, guess):
+    """A thermal strain e stretches the stress-free length to L0 (1 + e)."""
+    props = table.props
+    strain = lam * loads.strain[table.family]
+    return response(state.positions[table.nodes[:, 0]], state.positions[table.nodes[:, 1]],
+                    props["unstressed_length"] * (1.0 + strain), props["EA"],
+                    props["tension_only"], want_tangent, props.get("slack_stiffness"))
+
+
+def _mass(table, own, added, lumped, frames):
+    return mass_matrix(table.props["unstressed_length"], own + added, lumped)
+
+
+register(Family("bar", _evaluate, _mass))

@@ -57,6 +57,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import Family, register
+
 __all__ = [
     "BeamResponse",
     "VERTICAL_COSINE",
@@ -805,3 +807,29 @@ def mass_matrix(frame, L, mass_per_length, torsional_inertia, rotary_y, rotary_z
     for b in range(4):
         T[:, 3 * b:3 * b + 3, 3 * b:3 * b + 3] = Ft
     return np.swapaxes(T, 1, 2) @ Ml @ T
+
+
+# -- registration ------------------------------------------------------------------
+
+def _evaluate(table, state, loads, lam, want_tangent, guess):
+    props = table.props
+    i, j = table.nodes[:, 0], table.nodes[:, 1]
+    # stress-free length from the reference geometry, not from the
+    # (possibly shaped, already bent) coordinates
+    return response(state.positions[i], state.positions[j], state.rotations[i], state.rotations[j],
+                    props["frame0"], props["length"], props["E"], props["G"], props["A"],
+                    props["Iy"], props["Iz"], props["J"], axial_strain=lam * loads.strain[table.family],
+                    want_tangent=want_tangent)
+
+
+def _mass(table, own, added, lumped, frames):
+    """Always consistent, with the section's rotary and torsional inertia:
+    density times area is the own mass per length, so rho I = (w/g) I / A
+    (polar Iy + Iz)."""
+    props = table.props
+    rho = own / props["A"]
+    return mass_matrix(props["frame0"] if frames is None else frames, props["length"], own + added,
+                       rho * (props["Iy"] + props["Iz"]), rho * props["Iy"], rho * props["Iz"])
+
+
+register(Family("beam", _evaluate, _mass))

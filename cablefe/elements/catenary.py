@@ -45,6 +45,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import Family, register
+from .bar import tie_stiffness, two_node_matrix
+
 logger = logging.getLogger(__name__)
 
 NODE_DOFS = 3
@@ -524,8 +527,12 @@ def catenary_chord(H, V, unstressed_length, weight, EA):
     return _chord(H, V, L0, weight * L0, EA)
 
 
-def _end_force_arrays(H, V, unstressed_length, weight, EA, what):
-    """Validated (n,) arrays for the functions of given end forces."""
+def _end_force_arrays(H, V, unstressed_length, weight, EA, what=None):
+    """Validated (n,) arrays for the functions of given end forces.
+
+    ``what`` names the quantity for the error raised when it is undefined
+    for an unloaded weightless cable; None where it is defined there.
+    """
     n = _batch_size(H, V, unstressed_length, weight, EA)
     H, V = _vector("H", H, n), _vector("V", V, n)
     L0, weight, EA = (_vector("unstressed_length", unstressed_length, n), _vector("weight", weight, n),
@@ -533,7 +540,7 @@ def _end_force_arrays(H, V, unstressed_length, weight, EA, what):
     _check_cable(L0, weight, EA)
     if np.any(H < 0.0):
         raise ValueError(f"H must be >= 0 N, got {H[H < 0.0][:3]}")
-    if np.any((H == 0.0) & (V == 0.0) & (weight == 0.0)):
+    if what is not None and np.any((H == 0.0) & (V == 0.0) & (weight == 0.0)):
         raise ValueError(f"the {what} of an unloaded weightless cable (H = V = weight = 0) is undefined")
     return H, V, L0, weight, EA
 
@@ -624,8 +631,13 @@ class CatenaryResponse:
     converged: np.ndarray
 
 
-def _horizontal_unit(d, l):
-    """Horizontal unit vector from i to j; any horizontal direction on a vertical chord (H = 0 there)."""
+def horizontal_unit(d):
+    """Horizontal unit vectors (n, 3) along the chords ``d = xj - xi`` (n, 3).
+
+    On a vertical chord any horizontal direction will do (H = 0 there); x
+    is taken.
+    """
+    l = np.hypot(d[:, 0], d[:, 1])
     safe = l > 0.0
     e = np.zeros_like(d)
     e[:, 0] = np.where(safe, d[:, 0] / np.where(safe, l, 1.0), 1.0)
@@ -633,14 +645,25 @@ def _horizontal_unit(d, l):
     return e
 
 
-def _element_matrix(k):
-    n = k.shape[0]
-    K = np.empty((n, 6, 6))
-    K[:, :3, :3] = k
-    K[:, 3:, 3:] = k
-    K[:, :3, 3:] = -k
-    K[:, 3:, :3] = -k
-    return K
+def in_plane_stiffness(F_lH, F_lV, F_hV):
+    """Stiffness ``d(H, V)/d(l, h)`` from the flexibility ``d(l, h)/d(H, V)``.
+
+    The symmetric 2 x 2 flexibility (entries ``F_lH``, ``F_lV``, ``F_hV``,
+    m/N, as from :func:`catenary_flexibility`) is inverted in closed form.
+    A folded cable (``F_lH`` infinite, no horizontal stiffness) keeps only
+    the vertical stiffness ``1 / F_hV``.
+
+    Returns
+    -------
+    K_ll, K_lh, K_hh : (n,) arrays, N/m
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        det = F_lH * F_hV - F_lV * F_lV
+        folded = np.isinf(F_lH)
+        K_ll = np.where(folded, 0.0, F_hV / det)
+        K_lh = np.where(folded, 0.0, -F_lV / det)
+        K_hh = np.where(folded, 1.0 / F_hV, F_lH / det)
+    return K_ll, K_lh, K_hh
 
 
 def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=True, tol=1e-12, max_iter=100,
@@ -692,7 +715,7 @@ def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=Tru
     Va = V - W
     c, weightless, vertical, general = _classify(l, h, L0, weight)
 
-    e_h = _horizontal_unit(d, l)
+    e_h = horizontal_unit(d)
     f_j = H[:, None] * e_h + V[:, None] * _EZ
     f_i = -H[:, None] * e_h + (W - V)[:, None] * _EZ
     force = np.concatenate([f_i, f_j], axis=1)
@@ -711,16 +734,11 @@ def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=Tru
         curved = general | vertical
         if np.any(curved):
             cidx = np.flatnonzero(curved)
-            F_lH, F_lV, F_hV = _flexibility(H[cidx], V[cidx], L0[cidx], W[cidx], EA[cidx])
-            with np.errstate(divide="ignore", invalid="ignore"):
-                det = F_lH * F_hV - F_lV * F_lV
-                K_ll = np.where(np.isinf(F_lH), 0.0, F_hV / det)
-                K_lh = np.where(np.isinf(F_lH), 0.0, -F_lV / det)
-                K_hh = np.where(np.isinf(F_lH), 1.0 / F_hV, F_lH / det)
-                lc = l[cidx]
-                # sideways turn of the vertical plane; on a vertical chord the
-                # limit H/l -> dH/dl makes the horizontal stiffness isotropic
-                K_pp = np.where(vertical[cidx], K_ll, H[cidx] / np.where(lc > 0.0, lc, 1.0))
+            K_ll, K_lh, K_hh = in_plane_stiffness(*_flexibility(H[cidx], V[cidx], L0[cidx], W[cidx], EA[cidx]))
+            chord_h = l[cidx]
+            # sideways turn of the vertical plane; on a vertical chord the
+            # limit H/l -> dH/dl makes the horizontal stiffness isotropic
+            K_pp = np.where(vertical[cidx], K_ll, H[cidx] / np.where(chord_h > 0.0, chord_h, 1.0))
             eh = e_h[cidx]
             ep = np.stack([-eh[:, 1], eh[:, 0], np.zeros(cidx.size)], axis=1)
             ez = np.broadcast_to(_EZ, eh.shape)
@@ -731,11 +749,9 @@ def response(xi, xj, unstressed_length, EA, weight, guess=None, want_tangent=Tru
         taut_tie = weightless & (c > L0)
         if np.any(taut_tie):
             tidx = np.flatnonzero(taut_tie)
-            e = d[tidx] / c[tidx, None]
             N = EA[tidx] * (c[tidx] - L0[tidx]) / L0[tidx]
-            eet = np.einsum("ni,nj->nij", e, e)
-            k[tidx] = (EA[tidx] / L0[tidx])[:, None, None] * eet + (N / c[tidx])[:, None, None] * (np.eye(3) - eet)
-        tangent = _element_matrix(k)
+            k[tidx] = tie_stiffness(d[tidx] / c[tidx, None], EA[tidx] / L0[tidx], N / c[tidx])
+        tangent = two_node_matrix(k)
 
     return CatenaryResponse(force=force, tangent=tangent, end_tension=end_tension, max_tension=max_tension,
                             min_tension=min_tension, slack=slack, H=H, V=V, converged=converged)
@@ -809,7 +825,7 @@ def shape_points(xi, xj, unstressed_length, EA, weight, H, V, n_points):
     x = x.reshape(n, m)
     z = z.reshape(n, m)
     d = xj - xi
-    e_h = _horizontal_unit(d, np.hypot(d[:, 0], d[:, 1]))
+    e_h = horizontal_unit(d)
     pts = xi[:, None, :] + x[:, :, None] * e_h[:, None, :] + z[:, :, None] * _EZ
     straight = xi[:, None, :] + frac[None, :, None] * d[:, None, :]
     return np.where(undefined[:, None, None], straight, pts)
@@ -826,13 +842,7 @@ def stretched_length(H, V, unstressed_length, weight, EA):
     -------
     (n,) arc length, m.  A slack weightless element (H = V = 0) keeps L0.
     """
-    n = _batch_size(H, V, unstressed_length, weight, EA)
-    H, V = _vector("H", H, n), _vector("V", V, n)
-    L0, weight, EA = (_vector("unstressed_length", unstressed_length, n), _vector("weight", weight, n),
-                      _vector("EA", EA, n))
-    _check_cable(L0, weight, EA)
-    if np.any(H < 0.0):
-        raise ValueError(f"H must be >= 0 N, got {H[H < 0.0][:3]}")
+    H, V, L0, weight, EA = _end_force_arrays(H, V, unstressed_length, weight, EA)
     return L0 + L0 * _mean_tension(H, V, weight * L0) / EA
 
 
@@ -848,3 +858,39 @@ def mass_matrix(length, mass_per_length, lumped=False) -> np.ndarray:
     """
     from .bar import mass_matrix as straight
     return straight(length, mass_per_length, lumped)
+
+
+# -- registration ------------------------------------------------------------------
+
+def cable_inputs(table, loads, lam: float) -> tuple[np.ndarray, np.ndarray]:
+    """Stress-free length (m) and weight per unit stress-free length (N/m) of
+    the catenary elements at load factor ``lam``.
+
+    A thermal strain e stretches the stress-free length to ``L0 (1 + e)``
+    but leaves the mass alone: the weight per unit of the stretched length
+    is ``w0 / (1 + e)``, so the element weighs ``w0 L0`` whatever the
+    temperature (Irvine 1981, Cable Structures, sec. 1.3, thermal effects).
+    """
+    strain = lam * loads.strain[table.family]
+    stretch = 1.0 + strain
+    return table.props["unstressed_length"] * stretch, lam * loads.weight[table.family] / stretch
+
+
+def _evaluate(table, state, loads, lam, want_tangent, guess):
+    L0, weight = cable_inputs(table, loads, lam)
+    # an unconverged inner solve is marked in ``converged`` and fails the
+    # analysis step (solvers.static), so it is not logged here
+    return response(state.positions[table.nodes[:, 0]], state.positions[table.nodes[:, 1]],
+                    L0, table.props["EA"], weight, guess=guess, want_tangent=want_tangent, warn=False)
+
+
+def _mass(table, own, added, lumped, frames):
+    return mass_matrix(table.props["unstressed_length"], own + added, lumped)
+
+
+def _warm_start(r):
+    """The end forces of a solved state start the next inner solve."""
+    return (r.H, r.V)
+
+
+register(Family("cable", _evaluate, _mass, _warm_start))

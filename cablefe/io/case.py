@@ -39,7 +39,9 @@ Extensions to the interface page
 ``interior = [[x, y, z], ...]`` on a divided member
     Coordinates of its ``divide - 1`` interior nodes (written by
     form-finding so that a shaped case reloads in its shape).  Without it the
-    interior nodes lie evenly on the straight chord.
+    analysis starts them on a hanging chain for a cable or bar longer than
+    its chord (``length0``), else evenly on the straight chord
+    (:func:`cablefe.model.geometry.interior_start`).
 ``[beam_reference]``
     Stress-free geometry of beams, written by form-finding so that a shaped
     case with bending beams reloads with the bending it was found with::

@@ -1,0 +1,529 @@
+"""The public layer of the sparse direct solvers: :class:`LinearSolver` picks
+a backend (and its fallback chain), factorizes, checks and diagnoses;
+:class:`Factorization` solves and counts the inertia;
+:func:`make_linear_solver` and :func:`available_backends`.
+"""
+
+from __future__ import annotations
+
+import logging
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.sparse as sp
+import scipy.sparse.linalg as spla
+
+from .diagnostics import (_canonical_csr, _describe, _fallback_inertia, _null_modes,
+                          _unrestrained)
+from .engines import _ENGINES, _SUPERLU_SYM
+from .errors import SingularMatrixError, _FactorFailed
+from .pardiso import _pardiso_library
+from .pattern import _Pattern, _System
+
+logger = logging.getLogger(__name__)
+
+#: Names accepted by :func:`make_linear_solver`.
+KNOWN_BACKENDS = ("auto", "pardiso", "superlu", "splu-default")
+
+
+# --------------------------------------------------------------------------
+# public objects
+# --------------------------------------------------------------------------
+
+
+@dataclass
+class Factorization:
+    """Factors of one tangent stiffness, ready to solve ``K x = b``.
+
+    Attributes
+    ----------
+    n : int
+        Number of equations.
+    backend : str
+        Engine whose factors are used: ``"pardiso-spd"``,
+        ``"pardiso-indefinite"``, ``"pardiso-unsymmetric"``,
+        ``"superlu-symmetric"``, ``"superlu-pivoting"`` or ``"splu-default"``
+        (``"empty"`` for ``n = 0``).
+    requested : str
+        Name the solver was made with.
+    fallback : bool
+        True when ``backend`` is not the first choice for this request
+        (including a choice remembered for the pattern from an earlier
+        fallback, and a fallback triggered later by :meth:`solve`).
+    attempts : list of (str, str)
+        Engines that failed for this matrix and why.
+    reused_pattern : bool
+        True when the sparsity pattern was already known to the solver (the
+        cached analysis/ordering was used).
+    condition_estimate : float
+        Lower bound of the infinity-norm condition number of the scaled
+        matrix ``S K S`` from the probe solve (NaN when checks are off).
+    seconds : float
+        Wall time of :meth:`LinearSolver.factorize`, checks included (s).
+    stats : dict
+        Backend details: ``nnz_factor``, and for PARDISO the number of
+        perturbed pivots and its memory report (kB).
+    last_backward_error : float
+        Scaled backward error of the latest :meth:`solve` (dimensionless).
+    """
+
+    n: int
+    backend: str
+    requested: str
+    fallback: bool
+    attempts: list
+    reused_pattern: bool
+    condition_estimate: float
+    seconds: float
+    stats: dict
+    _system: _System | None = field(repr=False, default=None)
+    _factor: object = field(repr=False, default=None)
+    _spare: list = field(repr=False, default_factory=list)
+    _tol: float = field(repr=False, default=1e-10)
+    _singular_tol: float = field(repr=False, default=1e-12)
+    _check: bool = field(repr=False, default=True)
+    last_backward_error: float = float("nan")
+    _inertia: tuple | None = field(repr=False, default=None)
+
+    def solve(self, b) -> np.ndarray:
+        """Solve ``K x = b``.
+
+        The residual is checked; one step of iterative refinement is taken
+        when the scaled backward error exceeds the solver's
+        ``residual_tol``, and if that is not enough the remaining SuperLU
+        fallbacks are tried.
+
+        Parameters
+        ----------
+        b : array_like, shape (n,) or (n, m)
+            Right-hand side(s), in the units of the residual forces (N, N m).
+
+        Returns
+        -------
+        numpy.ndarray, shape of ``b``
+            Solution(s), in the units of the DOFs (m, rad).
+
+        Raises
+        ------
+        SingularMatrixError
+            When the residual cannot be reduced and ``K`` has a zero mode.
+        StaleFactorizationError
+            When a PARDISO factorization was overwritten by the solver.
+        """
+        b = np.asarray(b)
+        if b.ndim not in (1, 2) or b.shape[0] != self.n:
+            raise ValueError(f"b must have shape ({self.n},) or ({self.n}, m), got {b.shape}")
+        if np.iscomplexobj(b):
+            raise ValueError("b must be real")
+        if not np.all(np.isfinite(b)):
+            raise ValueError("b has non-finite entries")
+        B = np.array(b if b.ndim == 2 else b[:, None], dtype=np.float64, copy=True)
+        if self.n == 0 or B.shape[1] == 0:
+            return B.reshape(b.shape)
+        X = self._raw_solve(B)
+        if self._check:
+            eta, R = self._system.backward_error(B, X)
+            if np.any(eta > self._tol):
+                X = X + self._raw_solve(R)
+                eta, R = self._system.backward_error(B, X)
+            while np.any(eta > self._tol) and self._spare:
+                self._fall_back(f"solve backward error {eta.max():.1e} > {self._tol:.0e}")
+                X = self._raw_solve(B)
+                eta, R = self._system.backward_error(B, X)
+                if np.any(eta > self._tol):
+                    X = X + self._raw_solve(R)
+                    eta, R = self._system.backward_error(B, X)
+            self.last_backward_error = float(eta.max())
+            if np.any(eta > self._tol):
+                eqs, _, _ = _null_modes(self._system, self._factor.solve, self._singular_tol)
+                if eqs.size:
+                    raise SingularMatrixError(
+                        f"K is singular (zero-stiffness mode); equations {_describe(eqs)}", eqs)
+                logger.warning("linear solve: scaled backward error %.1e exceeds %.0e "
+                               "(backend %s); K is ill-conditioned", eta.max(), self._tol,
+                               self.backend)
+        return X.reshape(b.shape)
+
+    def _raw_solve(self, B: np.ndarray) -> np.ndarray:
+        while True:
+            try:
+                return self._factor.solve(B)
+            except _FactorFailed as exc:
+                if not self._spare:
+                    raise RuntimeError(
+                        f"solve failed with {self.backend} and no fallback is left: "
+                        f"{exc}") from None
+                self._fall_back(str(exc))
+
+    def _fall_back(self, reason: str) -> None:
+        self.attempts.append((self.backend, reason))
+        while self._spare:
+            name = self._spare.pop(0)
+            try:
+                self._factor = _ENGINES[name](self._system)
+            except _FactorFailed as exc:
+                self.attempts.append((name, str(exc)))
+                continue
+            logger.info("linear solve: %s -> %s (%s)", self.backend, name, reason)
+            self.backend, self.fallback = name, True
+            self.stats = dict(self._factor.stats)
+            return
+
+    def inertia(self) -> tuple[int, int, int] | None:
+        """Signs of the eigenvalues of a symmetric ``K`` from its pivots.
+
+        Exact by Sylvester's law of inertia (see the module documentation,
+        "Inertia"): read from the factors when they are a symmetric
+        ``LDL^T`` (symmetric SuperLU, PARDISO), otherwise from a dense
+        ``LDL^T`` of a small ``K`` or another symmetric SuperLU ordering.
+
+        Returns
+        -------
+        tuple of int or None
+            ``(positive, negative, zero)`` counts, or None for an
+            unsymmetric ``K`` (see :meth:`LinearSolver.inertia` for its
+            symmetric part) or when no symmetric factorization could be
+            made.  A negative count > 0 at an equilibrium means the
+            structure is unstable there (e.g. compressed beams past
+            buckling).  For SuperLU this builds the ``U`` factor once
+            (extra memory of that size, ~6 % of the factorization's time).
+        """
+        if self.n == 0:
+            return (0, 0, 0)
+        if self._system.asymmetry > 1e-12:
+            return None
+        if self._inertia is None:
+            found = self._factor.inertia(self._system)
+            if found is None:
+                found = _fallback_inertia(self._system, self._tol)
+            self._inertia = found
+        return self._inertia
+
+
+class LinearSolver:
+    """Factorizes tangent stiffness matrices, reusing work per sparsity pattern.
+
+    Make one with :func:`make_linear_solver` and keep it for all Newton
+    iterations of a model.  The solver remembers the last sparsity pattern
+    (``indptr``/``indices`` of the canonical CSR form of ``K``); a new pattern
+    replaces it (PARDISO memory of the old one is freed once no
+    factorization made with it is referenced).  Not thread-safe.
+
+    Parameters
+    ----------
+    name : str
+        One of :data:`KNOWN_BACKENDS`.
+    symmetric : bool
+        True when ``K`` is (meant to be) symmetric.  PARDISO then factorizes
+        the upper triangle; a matrix whose scaled asymmetry exceeds 1e-12 is
+        still solved exactly, with PARDISO's unsymmetric type.  SuperLU
+        factorizes the full matrix either way.
+    residual_tol : float
+        Largest accepted scaled normwise backward error (dimensionless).  A
+        stable direct solve reaches a few ``n_c * eps`` (``n_c`` the longest
+        column of the factor), i.e. 1e-15 to 1e-13 for stiffness matrices;
+        the default 1e-10 leaves room for that while rejecting factors with
+        pivot growth >~ 1e6.
+    singular_tol : float
+        A mode ``v`` (unit 2-norm, scaled coordinates) with
+        ``|S K S v|_2 <= singular_tol`` is a zero-stiffness mode; the scaled
+        diagonal is 1, so this is the stiffness relative to the typical DOF.
+    unrestrained_tol : float
+        Threshold of :func:`find_unrestrained`, checked before factorizing.
+    check : bool
+        Probe every factorization and check every solve (recommended; costs
+        about one extra solve per factorization and one matrix-vector product
+        per solve).
+    """
+
+    def __init__(self, name: str = "auto", symmetric: bool = True, *,
+                 residual_tol: float = 1e-10, singular_tol: float = 1e-12,
+                 unrestrained_tol: float = 1e-12, check: bool = True):
+        if name not in KNOWN_BACKENDS:
+            raise ValueError(f"unknown linear solver backend {name!r}; known: "
+                             f"{', '.join(KNOWN_BACKENDS)}")
+        for label, v in (("residual_tol", residual_tol), ("singular_tol", singular_tol),
+                         ("unrestrained_tol", unrestrained_tol)):
+            if not (0.0 < v < 1.0):
+                raise ValueError(f"{label} must be in (0, 1), got {v}")
+        if name == "pardiso":
+            fn, reason = _pardiso_library()
+            if fn is None:
+                raise ValueError(f"backend 'pardiso' is not available: {reason}; "
+                                 "install it with `pip install pypardiso` or use 'auto'")
+        self.name = name
+        self.symmetric = bool(symmetric)
+        self.residual_tol = float(residual_tol)
+        self.singular_tol = float(singular_tol)
+        self.unrestrained_tol = float(unrestrained_tol)
+        self.check = bool(check)
+        if name == "auto":
+            self._family = "pardiso" if _pardiso_library()[0] is not None else "superlu"
+        else:
+            self._family = name
+        self._pattern: _Pattern | None = None
+        self._symmetric_part: LinearSolver | None = None
+
+    def __repr__(self) -> str:
+        return (f"LinearSolver(name={self.name!r}, family={self._family!r}, "
+                f"symmetric={self.symmetric})")
+
+    # -- chains ---------------------------------------------------------------
+
+    def _preferred_chain(self, system: _System) -> list[str]:
+        superlu = ["superlu-symmetric", "superlu-pivoting"]
+        if self._family == "splu-default":
+            return ["splu-default"]
+        if self._family == "superlu":
+            return superlu
+        if not self.symmetric or system.asymmetry > 1e-12:
+            if self.symmetric:
+                logger.debug("linear solve: K is unsymmetric (scaled %.1e); "
+                             "using PARDISO's unsymmetric type", system.asymmetry)
+            return ["pardiso-unsymmetric", *superlu]
+        return ["pardiso-spd", "pardiso-indefinite", *superlu]
+
+    def _start(self, chain: list[str], pattern: _Pattern) -> list[str]:
+        # the remembered symmetric PARDISO type of this pattern
+        if chain[0] == "pardiso-spd" and pattern.pardiso_symmetric_mtype == -2:
+            return chain[1:]
+        return chain
+
+    # -- main entry -----------------------------------------------------------
+
+    def factorize(self, K) -> Factorization:
+        """Factorize the tangent stiffness ``K``.
+
+        Parameters
+        ----------
+        K : scipy.sparse matrix or array_like, shape (n, n)
+            Tangent stiffness of the free DOFs (N/m, N, N m/rad; mixed per
+            DOF).  Not modified; its values are copied, so the caller may
+            reassemble into the same arrays afterwards.
+
+        Returns
+        -------
+        Factorization
+
+        Raises
+        ------
+        SingularMatrixError
+            When ``K`` has unrestrained equations or a zero-stiffness mode.
+        ValueError
+            For a non-square, complex or non-finite ``K``.
+        """
+        t0 = time.perf_counter()
+        Kc = _canonical_csr(K)
+        n = Kc.shape[0]
+        reused = self._pattern is not None and self._pattern.matches(Kc)
+        if not reused:
+            if self._pattern is not None:
+                self._pattern.release()
+            self._pattern = _Pattern(n, Kc.indptr, Kc.indices)
+        pattern = self._pattern
+        if n == 0:
+            return Factorization(0, "empty", self.name, False, [], reused, 1.0,
+                                 time.perf_counter() - t0, {})
+        system = _System(pattern, Kc.data)
+
+        unrestrained = _unrestrained(system.K, system.diag, self.unrestrained_tol)
+        if unrestrained.size:
+            raise SingularMatrixError(
+                f"K has {unrestrained.size} unrestrained equation(s) (zero stiffness): "
+                f"{_describe(unrestrained)}", unrestrained)
+
+        preferred = self._preferred_chain(system)
+        chain = self._start(preferred, pattern)
+        attempts: list[tuple[str, str]] = []
+        for j, name in enumerate(chain):
+            try:
+                factor = _ENGINES[name](system)
+            except _FactorFailed as exc:
+                attempts.append((name, str(exc)))
+                logger.debug("linear solve: %s failed: %s", name, exc)
+                continue
+            kappa = np.nan
+            if self.check:
+                ok, reason, kappa = self._probe(system, factor)
+                if not ok:
+                    attempts.append((name, reason))
+                    logger.debug("linear solve: %s rejected: %s", name, reason)
+                    continue
+            if name == "pardiso-indefinite" and pattern.pardiso_symmetric_mtype == 2:
+                pattern.pardiso_symmetric_mtype = -2
+                pattern.pardiso.pop(2, None)   # the SPD analysis is not needed again
+            if attempts:
+                logger.info("linear solve: used %s after %s", name,
+                            "; ".join(f"{a}: {r}" for a, r in attempts))
+            spare = [e for e in chain[j + 1:] if e.startswith("superlu")]
+            return Factorization(
+                n=n, backend=name, requested=self.name, fallback=name != preferred[0],
+                attempts=attempts, reused_pattern=reused, condition_estimate=float(kappa),
+                seconds=time.perf_counter() - t0, stats=dict(factor.stats),
+                _system=system, _factor=factor, _spare=spare, _tol=self.residual_tol,
+                _singular_tol=self.singular_tol, _check=self.check)
+        raise self._diagnose_failure(system, attempts)
+
+    def solve(self, K, b) -> np.ndarray:
+        """Factorize ``K`` and solve ``K x = b`` (see :meth:`factorize`)."""
+        return self.factorize(K).solve(b)
+
+    def inertia(self, K, factorization: Factorization | None = None) -> tuple[int, int, int] | None:
+        """Eigenvalue sign counts of the symmetric part ``(K + K^T) / 2``.
+
+        At an equilibrium the symmetric part of the tangent is the second
+        variation of the potential energy, whose negative eigenvalues are
+        the unstable modes; the beams' spin-variable tangent is unsymmetric
+        away from equilibrium only.
+
+        Parameters
+        ----------
+        K : scipy.sparse matrix or array_like, shape (n, n)
+            Tangent stiffness (N/m, N, N m/rad).
+        factorization : Factorization, optional
+            A factorization of this ``K`` already made: its pivots are used
+            when ``K`` is symmetric (no new factorization).
+
+        Returns
+        -------
+        tuple of int or None
+            ``(positive, negative, zero)``, or None when no symmetric
+            factorization could be made.
+
+        Raises
+        ------
+        SingularMatrixError
+            When the symmetric part is singular (a zero eigenvalue).
+        """
+        if factorization is not None:
+            found = factorization.inertia()
+            if found is not None:
+                return found
+        Kc = _canonical_csr(K)
+        sym = (0.5 * (Kc + Kc.T)).tocsr()
+        if self._symmetric_part is None:
+            # its own pattern cache: the main solver keeps the tangent's
+            self._symmetric_part = LinearSolver(
+                self.name, True, residual_tol=self.residual_tol, singular_tol=self.singular_tol,
+                unrestrained_tol=self.unrestrained_tol, check=True)
+        return self._symmetric_part.factorize(sym).inertia()
+
+    def reset(self) -> None:
+        """Forget the cached pattern and the remembered backend choices.
+
+        PARDISO's memory is freed as soon as no :class:`Factorization` made
+        by this solver is still referenced.
+        """
+        if self._pattern is not None:
+            self._pattern.release()
+            self._pattern = None
+        if self._symmetric_part is not None:
+            self._symmetric_part.reset()
+
+    # -- checks ---------------------------------------------------------------
+
+    def _probe(self, system: _System, factor):
+        """Solve a fixed pseudo-random system; judge accuracy and singularity.
+
+        Returns ``(ok, reason, kappa)``; raises :class:`SingularMatrixError`
+        when the matrix has a zero-stiffness mode.
+        """
+        bhat = system.pattern.probe_rhs
+        B = (bhat * system.sinv)[:, None]          # b = S^-1 bhat
+        try:
+            X = factor.solve(B)
+        except _FactorFailed as exc:
+            return False, str(exc), np.nan
+        # judged without refinement: refinement can hide unstable factors
+        # (pivot growth) on one right-hand side and fail on the next
+        eta, _ = system.backward_error(B, X)
+        if not np.isfinite(eta[0]):
+            return False, "non-finite probe solution", np.nan
+        if eta[0] > self.residual_tol:
+            return False, (f"probe backward error {eta[0]:.1e} > "
+                           f"{self.residual_tol:.0e}"), np.nan
+        xhat = X[:, 0] * system.sinv              # xhat = S^-1 x
+        kappa = system.norm_hat * np.max(np.abs(xhat)) / np.max(np.abs(bhat))
+        # kappa underestimates cond(S K S) by about the size of bhat's
+        # component along the lowest mode (~ n^-1/2); a zero mode in floating
+        # point has cond ~ 1/eps, far above this trigger, while the mode
+        # analysis decides
+        # pivots perturbed by PARDISO are near-zero pivots by definition: the
+        # refined probe may still pass on a singular matrix, so look closer
+        perturbed = factor.stats.get("perturbed_pivots", 0) > 0
+        if perturbed or kappa > 1e-2 / self.singular_tol:
+            eqs, res, _ = _null_modes(system, factor.solve, self.singular_tol)
+            if eqs.size:
+                raise SingularMatrixError(
+                    f"K is singular: zero-stiffness mode (scaled stiffness {res[0]:.1e}) "
+                    f"involving equations {_describe(eqs)}", eqs)
+            logger.debug("linear solve: ill-conditioned K (cond >= %.1e), "
+                         "lowest scaled stiffness %.1e", kappa, res[0])
+        return True, "", kappa
+
+    def _diagnose_failure(self, system: _System, attempts) -> SingularMatrixError:
+        """Every backend failed: find the mechanism of a slightly shifted K."""
+        summary = "; ".join(f"{a}: {r}" for a, r in attempts)
+        d = system.sinv ** 2   # |K_ii|, zero diagonals replaced by the largest
+        for sigma in (1e-10, 1e-6):
+            Ksh = (system.K + sp.diags(sigma * d)).tocsc()
+            for kwargs in (dict(permc_spec="MMD_AT_PLUS_A", **_SUPERLU_SYM), {}):
+                try:
+                    lu = spla.splu(Ksh, **kwargs)
+                except RuntimeError:
+                    continue
+                eqs, res, best = _null_modes(system, lu.solve, self.singular_tol)
+                if eqs.size:
+                    return SingularMatrixError(
+                        f"K is singular: zero-stiffness mode (scaled stiffness "
+                        f"{res[0]:.1e}) involving equations {_describe(eqs)} ({summary})",
+                        eqs)
+                return SingularMatrixError(
+                    f"K could not be factorized ({summary}); its softest mode "
+                    f"(scaled stiffness {res[0]:.1e}) involves equations "
+                    f"{_describe(best)}", best)
+        return SingularMatrixError(f"K could not be factorized ({summary})", ())
+
+
+def available_backends() -> list[str]:
+    """Concrete backends usable on this machine, fastest first.
+
+    ``"auto"`` is always accepted by :func:`make_linear_solver` as well.
+
+    Returns
+    -------
+    list of str
+        A sublist of ``["pardiso", "superlu", "splu-default"]``.
+    """
+    names = ["superlu", "splu-default"]
+    if _pardiso_library()[0] is not None:
+        names.insert(0, "pardiso")
+    return names
+
+
+def make_linear_solver(name: str = "auto", symmetric: bool = True, **options) -> LinearSolver:
+    """Make a sparse direct solver for the tangent stiffness.
+
+    Parameters
+    ----------
+    name : {"auto", "pardiso", "superlu", "splu-default"}
+        Backend; see the module documentation.
+    symmetric : bool
+        Whether ``K`` is symmetric (cable, bar and small-rotation beam
+        models).
+    **options
+        ``residual_tol``, ``singular_tol``, ``unrestrained_tol``, ``check``:
+        see :class:`LinearSolver`.
+
+    Returns
+    -------
+    LinearSolver
+
+    Raises
+    ------
+    ValueError
+        For an unknown name (the message lists the known ones) or for
+        ``"pardiso"`` when pypardiso is not usable.
+    """
+    return LinearSolver(name, symmetric, **options)
