@@ -238,7 +238,10 @@ class Session:
         # whichever task a worker runs first.  The factorization itself is
         # kept (by a solver of its own, whose handle no later
         # factorization reuses) for modified Newton steps and influence lines.
-        self.base_tangent = self.assembler.evaluate(self.base_state, self.base_loads, 1.0, True).tangent
+        # the evaluation with element tangents is kept: influence lines read
+        # the gradient rows of tensions and reactions from its element blocks
+        self.base_evaluation = self.assembler.evaluate(self.base_state, self.base_loads, 1.0, True)
+        self.base_tangent = self.base_evaluation.tangent
         self.base_factor = None
         if self.base_tangent.shape[0]:
             try:
