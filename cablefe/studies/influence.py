@@ -34,6 +34,9 @@ from ..results import element_end_tensions
 
 #: adjoint right-hand sides solved together (bounds the dense block in memory)
 CHUNK = 256
+#: SuperLU systems up to this many DOFs solve ``SMALL_BLOCK`` columns per call
+SMALL_SYSTEM = 5000
+SMALL_BLOCK = 16
 #: solve per lane point instead of per response when that is fewer (same
 #: numbers; a switch for tests)
 RECIPROCITY = True
@@ -241,11 +244,15 @@ def _solves(fact, B):
     """``(first column, K^-1 B[:, block])`` over blocks of columns of ``B``.
 
     SuperLU's solve of many right-hand sides at once was measured 3-4 times
-    slower than solving them one by one (28 812 DOFs, 64 columns: 2.6 s
-    against 0.75 s), so its columns go one at a time; other backends take
-    blocks of ``CHUNK``.
+    slower than solving them one by one on large systems (28 812 DOFs, 64
+    columns: 2.6 s against 0.75 s; 16 columns per call 2.5 times slower),
+    so there its columns go one at a time; on small systems blocks of
+    ``SMALL_BLOCK`` were faster (1 816 DOFs, 102 columns: 9 ms against
+    20 ms one by one).  Other backends take blocks of ``CHUNK``.
     """
-    step = 1 if str(getattr(fact, "backend", "")).startswith(("superlu", "splu")) else CHUNK
+    step = CHUNK
+    if str(getattr(fact, "backend", "")).startswith(("superlu", "splu")):
+        step = SMALL_BLOCK if B.shape[0] <= SMALL_SYSTEM else 1
     for a in range(0, B.shape[1], step):
         block = B[:, a:a + step]
         block = block.toarray() if hasattr(block, "toarray") else np.asarray(block)
