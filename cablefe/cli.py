@@ -184,7 +184,7 @@ def _shape(case_path, shaped_path, solver=None) -> bool:
                   f"{t.reached / u.length_scale:>12.6g} {t.miss / u.length_scale:>10.2e}")
     print(f"  re-solved under the permanent loads it moves at most "
           f"{_fmt(found.largest_movement / u.length_scale, u.length)}")
-    print(f"wrote {written[0]}, {written[1]}")
+    print(f"wrote {', '.join(str(p) for p in written)}")
     return True
 
 
@@ -237,7 +237,7 @@ def cmd_solve(args, shape_first=False) -> int:
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
     _summary(results, design)
     if done is not None:
-        _study_summary(done)
+        _study_summary(done, model.spec.units)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
     if done is not None and done.failed:
@@ -278,23 +278,30 @@ def cmd_modes(args, model=None, results=None) -> int:
     return 0
 
 
-def _study_summary(done) -> None:
+def _study_summary(done, units) -> None:
+    """One line per study; the summary's values are in the case's units."""
     for name, why in done.skipped:
         print(f"  study {name}: skipped, {why}")
     for name, s in done.summary.items():
         line = f"  study {name} ({s['kind']}): {s['solves']} solve(s)" + (f", {s['failed']} FAILED" if s["failed"] else "")
+        if "largest_downward_displacement" in s:
+            d = s["largest_downward_displacement"]
+            line += f"; largest downward displacement {_fmt(-d['value'], units.length)} at {d['node']}"
         if "largest_tension" in s:
-            line += f"; largest tension {s['largest_tension']['value']:.4g} in {s['largest_tension']['member']}"
+            line += f"; largest tension {_fmt(s['largest_tension']['value'], units.force)} in {s['largest_tension']['member']}"
+        if s.get("slack_members"):
+            line += f"; slack: {', '.join(s['slack_members'][:8])}" + (" …" if len(s["slack_members"]) > 8 else "")
         print(line)
+        print(f"    envelope and governing patches: {s['folder']}/envelope.json")
 
 
 def cmd_study(args) -> int:
     from .studies.command import study_case
     t0 = time.perf_counter()
-    _, done, written = study_case(args.case, args.output, args.only, args.workers, args.scheduler, args.solver,
+    results, done, written = study_case(args.case, args.output, args.only, args.workers, args.scheduler, args.solver,
                                   sys.stderr if sys.stderr.isatty() else None)
     print(f"ran {len(done.summary)} study(ies) in {time.perf_counter() - t0:.2f} s")
-    _study_summary(done)
+    _study_summary(done, results.model.spec.units)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
     if done.failed:
