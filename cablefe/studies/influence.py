@@ -6,10 +6,10 @@ Linearised at the base state ``u0`` with tangent ``K``, a response
 under the response's dual unit "release" load: Müller-Breslau) gives the
 whole influence line at once, ``η(s) = λ · f_unit(s)``.  So the base
 tangent is factorised once (the study session's factorization, reused) and
-each response costs one back-substitution.  When the tangent is symmetric
-(no beams) and the lane has fewer points than there are responses, the
-same matrix ``C K^-1 F`` is formed from one back-substitution per lane
-point instead (Maxwell-Betti), whichever is fewer.  Responses:
+each response costs one back-substitution.  When the lane has fewer
+points than there are responses, the same matrix ``C K^-1 F`` is formed
+from one back-substitution of ``K`` per lane point instead (for a
+symmetric tangent this is Maxwell-Betti reciprocity), whichever is fewer.  Responses:
 
 * node displacement ``ux uy uz``: ``c`` is the unit vector of the DOF;
 * member tension: the end of the member that is most in tension at the
@@ -30,13 +30,15 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from ..assembly import Assembler
 from ..results import element_end_tensions
 
 #: adjoint right-hand sides solved together (bounds the dense block in memory)
 CHUNK = 256
-#: solve per lane point instead of per response when that is fewer and K is
-#: symmetric (same numbers; a switch for tests)
+#: SuperLU systems up to this many DOFs solve ``SMALL_BLOCK`` columns per call
+SMALL_SYSTEM = 5000
+SMALL_BLOCK = 16
+#: solve per lane point instead of per response when that is fewer (same
+#: numbers; a switch for tests)
 RECIPROCITY = True
 
 
@@ -62,49 +64,83 @@ class InfluenceLines:
     base: np.ndarray
 
 
-def _tension_rows(model, assembler, state, loads, members):
-    """Gradient rows ``∂T/∂u`` (free DOFs) of the watched members' governing end tension."""
-    blocks = assembler.element_responses(state, loads, 1.0, True)
+def _tension_rows(model, assembler, state, loads, members, blocks):
+    """Gradient rows ``∂T/∂u`` (free DOFs) of the watched members' governing end tension.
+
+    ``blocks`` are the element responses (with tangents) at ``state``.  Batched
+    per family: the governing end is the first largest end tension of the
+    member's elements, in element then end order (as ``numpy.argmax``).
+    """
     per = element_end_tensions(model, blocks)
-    rows, cols, vals, base = [], [], [], []
-    for r, k in enumerate(members):
-        mi = model.members[k]
-        f = mi.family
-        t = model.families[f]
-        ends = per[f][0][mi.elements]
-        e_local, end = np.unravel_index(int(np.argmax(ends)), ends.shape)
-        e = mi.first + int(e_local)
-        resp = blocks[f]
-        force, tangent = resp.force[e], resp.tangent[e]
+    members = np.asarray(members, dtype=int)
+    base = np.zeros(len(members))
+    rows, cols, vals = [np.zeros(0, int)], [np.zeros(0, int)], [np.zeros(0)]
+    family = np.array([model.members[k].family for k in members])
+    for f in dict.fromkeys(family.tolist()):
+        r_idx = np.flatnonzero(family == f)
+        first = np.array([model.members[members[r]].first for r in r_idx])
+        count = np.array([model.members[members[r]].count for r in r_idx])
+        # the (member row, element) pairs of these members, then their ends
+        owner = np.repeat(np.arange(len(r_idx)), count)
+        elem = np.repeat(first, count) + np.arange(count.sum()) - np.repeat(np.cumsum(count) - count, count)
+        value = per[f][0][elem].ravel()
+        who = np.repeat(owner, 2)
+        order = np.lexsort((np.arange(value.size), -value, who))
+        best = order[np.searchsorted(who[order], np.arange(len(r_idx)))]
+        e, end = elem[best // 2], best % 2
+        base[r_idx] = value[best]
+        resp, t = blocks[f], model.families[f]
         k3 = 3 if f != "beam" else 6           # DOFs per node
-        rows_end = slice(end * k3, end * k3 + 3)
-        sign = 1.0 if end == 1 else -1.0
-        xi, xj = state.positions[t.nodes[e, 0]], state.positions[t.nodes[e, 1]]
-        chord = np.linalg.norm(xj - xi)
-        axis = (xj - xi) / chord
-        base.append(float(ends[e_local, end]))
+        sel = end[:, None] * k3 + np.arange(3)                      # (n, 3) rows of the end
+        fe = np.take_along_axis(resp.force[e], sel, axis=1)         # (n, 3)
+        rows_end = np.take_along_axis(resp.tangent[e], sel[:, :, None], axis=1)   # (n, 3, k)
+        sign = np.where(end == 1, 1.0, -1.0)
+        d = state.positions[t.nodes[e, 1]] - state.positions[t.nodes[e, 0]]
+        chord = np.linalg.norm(d, axis=1)
+        axis = d / chord[:, None]
         if f == "cable":
-            fe = force[rows_end]
-            size = np.linalg.norm(fe)
-            w = fe / size if size > 0 else np.zeros(3)
-            g = w @ tangent[rows_end, :]
+            size = np.linalg.norm(fe, axis=1)
+            w = np.divide(fe, size[:, None], out=np.zeros_like(fe), where=size[:, None] > 0)
+            g = np.einsum("ni,nik->nk", w, rows_end)
         else:
-            g = sign * axis @ tangent[rows_end, :]
+            g = np.einsum("ni,nik->nk", sign[:, None] * axis, rows_end)
             if f == "beam":
-                acting = force[rows_end]
+                acting = fe
                 if loads.beam_loads is not None:
-                    acting = acting - loads.beam_loads[e, rows_end]
-                perp = acting - (axis @ acting) * axis
-                g = g.copy()
-                g[6:9] += sign * perp / chord
-                g[0:3] -= sign * perp / chord
+                    acting = acting - np.take_along_axis(loads.beam_loads[e], sel, axis=1)
+                perp = acting - np.einsum("ni,ni->n", axis, acting)[:, None] * axis
+                turn = (sign / chord)[:, None] * perp
+                g[:, 6:9] += turn
+                g[:, 0:3] -= turn
         eq = assembler.equation[t.dofs[e]]
         keep = eq >= 0
-        rows += [r] * int(keep.sum())
-        cols += eq[keep].tolist()
-        vals += g[keep].tolist()
-    return (sp.csr_matrix((vals, (rows, cols)), shape=(len(members), assembler.nfree)),
-            np.asarray(base))
+        rows.append(np.broadcast_to(r_idx[:, None], eq.shape)[keep])
+        cols.append(eq[keep])
+        vals.append(g[keep])
+    return (sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                          shape=(len(members), assembler.nfree)), base)
+
+
+def _reaction_rows(model, assembler, blocks, dofs):
+    """Rows ``dofs`` (global DOFs) of the tangent over all DOFs, restricted to the
+    free columns, from the element blocks (the assembly of those rows only)."""
+    index = np.full(model.ndof, -1)
+    index[dofs] = np.arange(len(dofs))
+    rows, cols, vals = [np.zeros(0, int)], [np.zeros(0, int)], [np.zeros(0)]
+    for f, r in blocks.items():
+        g = model.families[f].dofs                       # (n, k)
+        row = index[g]                                   # (n, k)
+        col = assembler.equation[g]
+        hit = np.flatnonzero((row >= 0).any(axis=1))
+        if not hit.size:
+            continue
+        row, col, K = row[hit], col[hit], r.tangent[hit]          # K (m, k, k)
+        keep = (row[:, :, None] >= 0) & (col[:, None, :] >= 0)
+        rows.append(np.broadcast_to(row[:, :, None], K.shape)[keep])
+        cols.append(np.broadcast_to(col[:, None, :], K.shape)[keep])
+        vals.append(K[keep])
+    return sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                         shape=(len(dofs), assembler.nfree))
 
 
 def influence_lines(session, lane, direction, node_ids=None, member_ids=None) -> InfluenceLines:
@@ -144,7 +180,8 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
             base.append(float(disp0[n, a]))
     C_disp = sp.csr_matrix((np.ones(len(r_rows)), (r_rows, r_cols)), shape=(len(names), nfree))
 
-    C_ten, T0 = _tension_rows(model, asm, state, loads, members) if len(members) else \
+    blocks = session.base_evaluation.responses
+    C_ten, T0 = _tension_rows(model, asm, state, loads, members, blocks) if len(members) else \
         (sp.csr_matrix((0, nfree)), np.zeros(0))
     for k, t in zip(members, T0):
         names.append(f"{model.members[k].id} tension")
@@ -158,12 +195,9 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
             for a in range(3) if model.dof[n, a] >= 0 and model.supported[model.dof[n, a]]]
     C_reac = sp.csr_matrix((len(reac), nfree))
     if reac:
-        full = Assembler(model, free=np.arange(ndof))
-        ev = full.evaluate(state, loads, 1.0, True)
-        Kfull = ev.tangent.tocsr()
         g = np.array([r[2] for r in reac])
-        C_reac = Kfull[g][:, asm.free]
-        R0 = ev.internal[g] - loads.nodal[g]
+        C_reac = _reaction_rows(model, asm, blocks, g)
+        R0 = session.base_evaluation.internal[g] - loads.nodal[g]
         for (n, a, _), r0 in zip(reac, R0):
             names.append(f"{model.node_ids[n]} R{'xyz'[a]}")
             kind.append("reaction")
@@ -184,20 +218,22 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
         direct[len(names) - len(reac):] = -F[[r[2] for r in reac]]
 
     values = np.zeros((len(names), P))
+    symmetric_tangent = not model.has_rotations
     if nfree:
-        # the adjoint needs K^T; the tangent of bars and cables is symmetric,
-        # so the session's factorization of the base tangent serves as it is
-        fact = session.base_factor
-        symmetric = not model.has_rotations and fact is not None
-        if not symmetric:
-            fact = session.solver.factorize(session.base_tangent.T.tocsr())
-        if RECIPROCITY and symmetric and P < len(names):
-            # fewer lane points than responses: by Maxwell-Betti reciprocity
-            # (K symmetric) C K^-1 F = (K^-1 C^T)^T F, so the same numbers
-            # come from one solve per lane point, the cheaper side
-            for a, X in _solves(fact, F_free):
+        if RECIPROCITY and P < len(names) and session.base_factor is not None:
+            # fewer lane points than responses: solve K X = F once per lane
+            # point with the session's factorization of the base tangent,
+            # then C X: the same numbers as the adjoint (C K^-1 F either
+            # way; for a symmetric K this is Maxwell-Betti reciprocity), and
+            # an unsymmetric K (beams) needs no factorization of K^T
+            for a, X in _solves(session.base_factor, F_free):
                 values[:, a:a + X.shape[1]] = (C @ X)
         else:
+            # the adjoint needs K^T; the tangent of bars and cables is
+            # symmetric, so the session's factorization serves as it is
+            fact = session.base_factor
+            if not symmetric_tangent or fact is None:
+                fact = session.solver.factorize(session.base_tangent.T.tocsr())
             for a, lam in _solves(fact, C.T.tocsc()):
                 values[a:a + lam.shape[1]] = lam.T @ F_free
     values += direct
@@ -208,11 +244,15 @@ def _solves(fact, B):
     """``(first column, K^-1 B[:, block])`` over blocks of columns of ``B``.
 
     SuperLU's solve of many right-hand sides at once was measured 3-4 times
-    slower than solving them one by one (28 812 DOFs, 64 columns: 2.6 s
-    against 0.75 s), so its columns go one at a time; other backends take
-    blocks of ``CHUNK``.
+    slower than solving them one by one on large systems (28 812 DOFs, 64
+    columns: 2.6 s against 0.75 s; 16 columns per call 2.5 times slower),
+    so there its columns go one at a time; on small systems blocks of
+    ``SMALL_BLOCK`` were faster (1 816 DOFs, 102 columns: 9 ms against
+    20 ms one by one).  Other backends take blocks of ``CHUNK``.
     """
-    step = 1 if str(getattr(fact, "backend", "")).startswith(("superlu", "splu")) else CHUNK
+    step = CHUNK
+    if str(getattr(fact, "backend", "")).startswith(("superlu", "splu")):
+        step = SMALL_BLOCK if B.shape[0] <= SMALL_SYSTEM else 1
     for a in range(0, B.shape[1], step):
         block = B[:, a:a + step]
         block = block.toarray() if hasattr(block, "toarray") else np.asarray(block)
