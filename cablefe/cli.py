@@ -69,6 +69,16 @@ def _parser() -> argparse.ArgumentParser:
                        help="solve only this combination (repeatable)")
         s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
                        help="sparse linear solver backend (default: [analysis] solver or auto)")
+        if name == "run":
+            _study_options(s)
+    s = sub.add_parser("study", help="run the case's [[studies]] alone (solving their base results)",
+                       description="live-load studies: influence lines, worst patches, sweeps, tolerances")
+    s.add_argument("case", help="case file (TOML)")
+    s.add_argument("-o", "--output", required=True, help="output folder")
+    s.add_argument("--only", action="append", metavar="NAME", help="run only this study (repeatable)")
+    s.add_argument("--solver", choices=["auto", "superlu", "splu-default", "pardiso"],
+                   help="sparse linear solver backend (default: [analysis] solver or auto)")
+    _study_options(s)
     text = "natural modes about a converged result (and the pedestrian check when configured): [modes]"
     s = sub.add_parser("modes", help=text, description=text, epilog="examples:\n  cablefe modes "
                        "cases/generated-suspension.toml -o out/modes",
@@ -80,6 +90,17 @@ def _parser() -> argparse.ArgumentParser:
     from .generate.command import add_parser as add_new_parser
     add_new_parser(sub, _Parser)
     return p
+
+
+def _positive(text: str) -> int:
+    if not text.isdigit() or int(text) < 1:
+        raise argparse.ArgumentTypeError(f"expected a positive integer, found {text!r}")
+    return int(text)
+
+
+def _study_options(s) -> None:
+    s.add_argument("--workers", type=_positive, metavar="N", help="local processes for the studies (default: all cores)")
+    s.add_argument("--scheduler", metavar="ADDRESS", help="run the studies on a Dask cluster (tcp://host:8786)")
 
 
 def _fmt(x, unit, digits=4):
@@ -195,21 +216,34 @@ def cmd_solve(args, shape_first=False) -> int:
 
     results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
     written = write_results(results, out)
+    design = done = None
+    if shape_first and model.spec.studies:   # `run`: the studies after the solve, before design
+        from .studies.command import add_to_results, run_studies
+        done = run_studies(results, out, workers=args.workers, scheduler=args.scheduler, solver=args.solver,
+                           progress_stream=sys.stderr if live else None)
+        written += [add_to_results(results, out, done)] + done.written
     modes_status = 0
     if shape_first and model.spec.modes is not None:   # after solve (and studies), before design and report
         modes_status = cmd_modes(args, model, results)
-    design = None
     if shape_first:  # `run` adds design checks (and sizing), plots and a report
         from .design.stage import design_stage
         from .report.html import write_report
         design = design_stage(results, out, CAUTION, args.case, args.solver)
         if design is not None:
             results, written = design.results, written + list(design.written)
+            if done is not None:   # design rewrote results.json
+                add_to_results(results, out, done)
         written += write_report(results, out, case, CAUTION, design)
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
     _summary(results, design)
+    if done is not None:
+        _study_summary(done, model.spec.units)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
+    if done is not None and done.failed:
+        print(f"cablefe: failed solves in studies: {', '.join(done.failed)} (marked in envelope.json)",
+              file=sys.stderr)
+        return 1
     if design is not None and not design.settled:
         print(f"cablefe: sizing: {design.outcome.sizing['message']} (see design.json)", file=sys.stderr)
         return 1
@@ -244,6 +278,39 @@ def cmd_modes(args, model=None, results=None) -> int:
     return 0
 
 
+def _study_summary(done, units) -> None:
+    """One line per study; the summary's values are in the case's units."""
+    for name, why in done.skipped:
+        print(f"  study {name}: skipped, {why}")
+    for name, s in done.summary.items():
+        line = f"  study {name} ({s['kind']}): {s['solves']} solve(s)" + (f", {s['failed']} FAILED" if s["failed"] else "")
+        if "largest_downward_displacement" in s:
+            d = s["largest_downward_displacement"]
+            line += f"; largest downward displacement {_fmt(-d['value'], units.length)} at {d['node']}"
+        if "largest_tension" in s:
+            line += f"; largest tension {_fmt(s['largest_tension']['value'], units.force)} in {s['largest_tension']['member']}"
+        if s.get("slack_members"):
+            line += f"; slack: {', '.join(s['slack_members'][:8])}" + (" …" if len(s["slack_members"]) > 8 else "")
+        print(line)
+        print(f"    envelope and governing patches: {s['folder']}/envelope.json")
+
+
+def cmd_study(args) -> int:
+    from .studies.command import study_case
+    t0 = time.perf_counter()
+    results, done, written = study_case(args.case, args.output, args.only, args.workers, args.scheduler, args.solver,
+                                  sys.stderr if sys.stderr.isatty() else None)
+    print(f"ran {len(done.summary)} study(ies) in {time.perf_counter() - t0:.2f} s")
+    _study_summary(done, results.model.spec.units)
+    print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
+    print("caution: " + CAUTION)
+    if done.failed:
+        print(f"cablefe: failed solves in studies: {', '.join(done.failed)} (marked in envelope.json)",
+              file=sys.stderr)
+        return 1
+    return 0
+
+
 def _check_options(args) -> None:
     """Options that name things the case or the machine may not have, checked before any work.
 
@@ -273,6 +340,7 @@ def _check_options(args) -> None:
 def main(argv=None) -> int:
     """Run the command line; returns the exit status (0, 1 or 2, 130 on Ctrl-C)."""
     from .errors import CaseError
+    from .studies.runner import RunnerError
     try:
         args = _parser().parse_args(argv)
     except UsageError as exc:
@@ -294,6 +362,8 @@ def main(argv=None) -> int:
             return cmd_modes(args)
         if args.command == "run":
             return cmd_solve(args, shape_first=True)
+        if args.command == "study":
+            return cmd_study(args)
         if args.command == "new":
             from .generate.command import run as cmd_new
             try:
@@ -304,6 +374,9 @@ def main(argv=None) -> int:
     except CaseError as exc:
         if exc.file is None and case is not None:
             exc = exc.with_file(str(case))
+        print(f"cablefe: {exc}", file=sys.stderr)
+        return 2
+    except RunnerError as exc:
         print(f"cablefe: {exc}", file=sys.stderr)
         return 2
     except FileNotFoundError as exc:

@@ -237,6 +237,34 @@ class ModesSpec:
 
 
 @dataclass(frozen=True)
+class StudySpec:
+    """One ``[[studies]]`` entry (see :mod:`cablefe.studies`), SI units.
+
+    ``path`` is a list of node ids, or (``path_pattern``) one member id
+    pattern whose matches, in case order, are chained into the lane.
+    ``load`` is N/m for patches, N for a point force; for ``influence``
+    only its direction counts.  ``sigma`` / ``range`` are m, or ratios of
+    the unstressed length when ``relative``.
+    """
+
+    name: str
+    kind: str                                  # "influence" | "patch" | "sweep" | "tolerance"
+    base: str | None = None                    # result the study starts from; None: the first
+    path: tuple[str, ...] = ()
+    path_pattern: bool = False
+    load: tuple[float, float, float] | None = None
+    watch: tuple[str, ...] | None = None       # node / member patterns; None: all
+    length: float | None = None                # m, sweep patch length
+    steps: int | None = None
+    sigma: float | None = None
+    range: float | None = None
+    relative: bool = False
+    samples: int | None = None
+    seed: int = 0
+    key: str = ""
+
+
+@dataclass(frozen=True)
 class CaseSpec:
     """A whole validated case in SI units."""
 
@@ -256,6 +284,7 @@ class CaseSpec:
     source: str | None = None          # path of the file read, if any
     raw: Mapping[str, Any] | None = None  # the parsed TOML, kept for faithful rewriting
     extra: Mapping[str, Any] = field(default_factory=dict)  # tables for later studies
+    studies: tuple[StudySpec, ...] = ()        # ``[[studies]]``
     modes: ModesSpec | None = None     # ``[modes]``
     # ``[design]`` with its ``[[design.size]]`` groups, and ``[catalogues.*]``
     design: "DesignSpec | None" = None

@@ -101,6 +101,23 @@ def test_design_outputs_and_meshes(sized_run):
     assert "[catalogues.example-strands]" in sized and CAUTION.split(";")[0] in sized.replace("\n# ", " ")
 
 
+def test_sizing_names_a_check_no_section_passes_in_json_and_report(sized_run):
+    # The example deck lifts off its end bearing under the half-span crowd
+    # whatever hanger is chosen: the probe with the largest catalogue section
+    # still shows uplift, so sizing says so in design.json and the report
+    # instead of driving the hangers to the largest section.
+    design = json.loads((sized_run / "design.json").read_text())
+    sizing = design["sizing"]
+    entries = {e["check"]: e for e in sizing["no_section_passes"]}
+    assert set(entries) == {"uplift"} and entries["uplift"]["largest_uplift"] > 0
+    assert "no catalogue section removes the support uplift" in sizing["message"]
+    assert sizing["final"]["H*"]["no_section_passes"] == ["uplift"]
+    assert sizing["analyses"] == len(sizing["history"]) + sizing["probe_analyses"]
+    text = (sized_run / "report.html").read_text()
+    sizing_html = text[text.index('<section id="sizing">'):]
+    assert "no catalogue section passes" in sizing_html and "uplift" in sizing_html
+
+
 def test_design_table_lists_every_member_not_only_the_first_60():
     members = {f"M{k}": {"utilization": k / 200, "check": "cable", "result": "r", "section": "s"} for k in range(150)}
     text = _design(Path("."), {"factors": {}, "placeholders": [], "members": members}, None)

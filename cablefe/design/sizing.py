@@ -1,17 +1,25 @@
-"""Catalogue sizing: each ``[[design.size]]`` group gets the smallest section that passes.
+"""Catalogue sizing: each ``[[design.size]]`` group gets the smallest section that passes every check.
 
-Selection uses the member checks that a section changes directly: the
-cable check (cable_factor x largest tension / breaking load) and, for
-beams, the elastic stress check, evaluated with the forces of the last
-analysis for every catalogue section from the smallest up.  A new section
-changes the stiffness and the weight, so the loads move between members:
-the case is analysed again (shaped again first when it has ``[shape]``) and
-the selection repeated until no group changes.  When a choice comes back
-(the selection cycles between sections) the larger section of the cycle is
-taken for each group, analysed once more, and the sizing reports that the
-choice oscillates.  The other checks (slack margin, deflection, uplift) are
-run on the sized design and reported; a catalogue section cannot be chosen
-for them by this rule.
+Catalogues are ordered smallest first (by area, then breaking load), the
+order of capacity and stiffness.  Two kinds of check decide:
+
+* strength (the cable check, cable_factor x largest tension / breaking
+  load, and for beams the elastic stress check) is evaluated with the
+  forces of the last analysis for every catalogue section from the
+  smallest up (:func:`select`);
+* stiffness (slack margin, deck deflection, support uplift) changes with a
+  section only through the analysis: a failing one steps its group(s) one
+  section up, after one probe analysis with the largest sections has shown
+  that some catalogue section can make it pass.  A check that no section
+  passes is said so (``no_section_passes`` in ``design.json``, the message
+  in the CLI and the report) and does not drive the choice.
+
+A new section changes the stiffness and the weight, so the loads move
+between members: the case is analysed again (shaped again first when it
+has ``[shape]``) and the selection repeated until no group changes.  When a
+choice comes back (the selection cycles between sections) the larger
+section of the cycle is taken for each group, analysed once more, and the
+sizing reports that the choice oscillates.
 """
 from __future__ import annotations
 
@@ -24,7 +32,7 @@ import numpy as np
 
 from ..errors import CaseError
 from ..spec import CaseSpec, Section
-from .checks import cable_utilization, select_targets, stress_utilization
+from .checks import cable_utilization, run_checks, select_targets, stress_utilization
 
 log = logging.getLogger(__name__)
 
@@ -141,17 +149,113 @@ def select(spec: CaseSpec, results) -> tuple[list[int], list[bool]]:
     return choice, passes
 
 
+#: checks that a section changes only through the stiffness it gives the
+#: structure: they are read from an analysis with the section, not evaluated
+#: with the forces of another one
+STIFFNESS_CHECKS = ("slack", "deflection-down", "deflection-up", "uplift")
+
+
+def stiffness_failures(spec: CaseSpec, results) -> dict[tuple[str, int | None], tuple[tuple[int, ...], float]]:
+    """The failing stiffness-driven checks of an analysed design, and the groups they point at.
+
+    Returns ``(check, group or None) -> (groups that can change it, worst
+    utilization)``: a slack margin points at the group of its member; a deck
+    deflection or a support uplift at every group (the whole structure
+    carries the deck).  Uplift's "utilization" is the largest uplift, N.
+    """
+    groups = group_members(spec)
+    group_of = {m: g for g, members in enumerate(groups) for m in members}
+    every = tuple(range(len(groups)))
+    outcome = run_checks(spec.design, results)
+    out: dict = {}
+    for c in outcome.checks:
+        if c.utilization <= 1.0 or c.check not in STIFFNESS_CHECKS:
+            continue
+        if c.check == "slack":
+            if c.item not in group_of:
+                continue
+            key, gs = ("slack", group_of[c.item]), (group_of[c.item],)
+        else:
+            key, gs = (c.check, None), every
+        u = max(out.get(key, (gs, -math.inf))[1], c.utilization)
+        out[key] = (gs, u)
+    up = [-v for per in outcome.uplift.values() for v in per.values()]
+    if up:
+        out[("uplift", None)] = (every, max(up))
+    return out
+
+
+def _check_label(key, labels) -> str:
+    check, g = key
+    return f"{check} of {labels[g]}" if g is not None else check
+
+
 def size_members(spec: CaseSpec, results, envelopes=None, linear_solver=None, progress=None) -> SizingRun:
-    """Iterate analysis and selection until no group changes (see the module docstring)."""
+    """Iterate analysis and selection until no group changes.
+
+    Each analysed choice is checked in full.  Strength (cable, stress) gives
+    per group the smallest passing section with the forces of that analysis
+    (:func:`select`).  A failing stiffness check (slack margin, deck
+    deflection, uplift: :data:`STIFFNESS_CHECKS`) raises a floor under the
+    groups it points at: first one probe analysis with those groups at their
+    largest section tells whether any catalogue section can make it pass;
+    if not, the check is reported as one that no section passes and it does
+    not drive the choice; if so, the group is stepped one section up (of
+    several groups, the one whose step lowers the check most, by one probe
+    analysis each).  The choice is the larger of strength and floor; floors
+    only rise, so a group stepped for stiffness stays at least there.
+    """
     design = spec.design
     labels = [", ".join(g.members) for g in design.size]
+    tops = [len(spec.catalogues[g.catalogue].sections) - 1 for g in design.size]
     names = results.names
     history: list[list[int]] = []
     settled, message = False, ""
     current_spec, current, cutting = spec, results, None
+    floor = [0] * len(labels)
+    fixable: set = set()
+    unfixable: dict = {}        # key -> (groups, utilization with the largest sections)
+    probes = 0
 
     def sec_name(g, c):
         return spec.catalogues[design.size[g].catalogue].sections[c].name
+
+    def probe(choice):
+        nonlocal probes
+        probes += 1
+        s, r, _ = _analyse(apply_sections(spec, choice), names, linear_solver, progress)
+        return stiffness_failures(s, r) if r.all_converged else None
+
+    def stiffness_steps(choice):
+        """Raise ``floor`` for the failing stiffness checks of the analysed ``choice``."""
+        for key, (gs, u) in stiffness_failures(current_spec, current).items():
+            if key in unfixable:
+                continue
+            below = [g for g in gs if choice[g] < tops[g]]
+            if key not in fixable:
+                if not below:
+                    unfixable[key] = (gs, u)
+                    continue
+                top = [tops[g] if g in gs else c for g, c in enumerate(choice)]
+                found = probe(top)
+                if found is not None and key in found:
+                    unfixable[key] = (gs, found[key][1])
+                    continue
+                fixable.add(key)
+            if not below:
+                continue
+            if len(below) == 1:
+                g = below[0]
+            else:
+                # the group whose one-step-up lowers this check most; ties: the cheaper step
+                def after(g):
+                    found = probe([c + 1 if h == g else c for h, c in enumerate(choice)])
+                    return math.inf if found is None else found.get(key, (gs, 0.0))[1]
+                cats = [spec.catalogues[design.size[g].catalogue].sections for g in below]
+                g = min(below, key=lambda g, _c=dict(zip(below, cats)): (
+                    after(g), _c[g][choice[g] + 1].area - _c[g][choice[g]].area))
+            floor[g] = max(floor[g], choice[g] + 1)
+
     if not results.all_converged:
         info = {"settled": False, "message": "a result of the case as given did not converge: no sizing",
                 "groups": labels, "history": [], "final": {}, "analyses": 0}
@@ -178,7 +282,9 @@ def size_members(spec: CaseSpec, results, envelopes=None, linear_solver=None, pr
             message = (f"the analysis with {', '.join(sec_name(g, c) for g, c in enumerate(choice))} did not "
                        "converge: sizing stopped")
             break
-        choice, passes = select(current_spec, current)
+        strength, passes = select(current_spec, current)
+        stiffness_steps(choice)
+        choice = [max(a, b) for a, b in zip(strength, floor)]
     else:
         message = f"no settled choice after {design.max_sizing_iterations} analyses ([design] max_sizing_iterations)"
     final = history[-1] if history else choice
@@ -186,21 +292,42 @@ def size_members(spec: CaseSpec, results, envelopes=None, linear_solver=None, pr
     # does the last analysed choice pass the strength checks of its own forces?
     own, own_pass = select(current_spec, current)
     final_info = {lab: {"section": sec_name(g, final[g]), "catalogue": design.size[g].catalogue,
-                        "passes": bool(own_pass[g] and own[g] <= final[g])} for g, lab in enumerate(labels)}
-    if any(not v["passes"] for v in final_info.values()):
-        message += "; no catalogue section passes for " + ", ".join(k for k, v in final_info.items() if not v["passes"])
+                        "passes": bool(own_pass[g] and own[g] <= final[g]),
+                        "no_section_passes": sorted(k[0] for k in unfixable if g in unfixable[k][0])}
+                  for g, lab in enumerate(labels)}
+    strength_fail = [k for k, v in final_info.items() if not (own_pass[labels.index(k)])]
+    if strength_fail:
+        message += "; no catalogue section passes the strength check for " + ", ".join(strength_fail)
+    F = spec.units
+    if unfixable:
+        def says(k, gs, u):
+            largest = " with the largest section" + ("s" if len(gs) > 1 else "")
+            if k[0] == "uplift":
+                return f"no catalogue section removes the support uplift ({u / F.force_scale:.4g} {F.force}{largest})"
+            return (f"no catalogue section makes {_check_label(k, labels)} pass ("
+                    + ("slack" if not math.isfinite(u) else f"u = {u:.3g}") + largest + ")")
+        message += "; " + "; ".join(says(k, gs, u) for k, (gs, u) in unfixable.items()) + (
+            ": " + ("it does" if len(unfixable) == 1 else "they do") + " not drive the choice")
     if envelopes:
         message += "; study envelopes are those of the case before sizing (run the studies on sized.toml)"
     info = {"settled": settled, "message": message, "groups": labels, "history": hist, "final": final_info,
-            "analyses": len(history)}
+            "analyses": len(history) + probes, "probe_analyses": probes,
+            "no_section_passes": [
+                {"check": k[0], "group": labels[k[1]] if k[1] is not None else None, "groups": [labels[g] for g in gs],
+                 # uplift: the largest uplift (case force unit); a slack member: null
+                 "utilization_with_largest": (u if math.isfinite(u) and k[0] != "uplift" else None),
+                 **({"largest_uplift": u / F.force_scale} if k[0] == "uplift" else {})}
+                for k, (gs, u) in unfixable.items()]}
     return SizingRun(current_spec, current, settled, info, cutting)
 
 
 def with_final_checks(info: dict, outcome, spec: CaseSpec) -> dict:
     """The sizing history with each group's ``passes`` from every check of its members.
 
-    Selection looks at strength; a group whose members still fail another
-    check (slack margin) is marked here and named in the message.
+    A group whose members still fail a check is marked (``checks_failing``)
+    and named in the message: a check that no catalogue section passes was
+    found so during sizing (``no_section_passes``); any other failing check
+    means sizing stopped before it was met (oscillation, iteration limit).
     """
     info = {**info, "final": {k: dict(v) for k, v in info.get("final", {}).items()}}
     failing = []
@@ -210,10 +337,17 @@ def with_final_checks(info: dict, outcome, spec: CaseSpec) -> dict:
         if lab in info["final"]:
             info["final"][lab]["passes"] = info["final"][lab]["passes"] and not bad
             info["final"][lab]["checks_failing"] = sorted({c.check for c in bad})
-        if bad:
-            failing.append(f"{lab} ({', '.join(sorted({c.check for c in bad}))} in {len(bad)} member(s))")
+        known = set(info["final"].get(lab, {}).get("no_section_passes", []))
+        other = sorted({c.check for c in bad} - known)
+        if other:
+            failing.append(f"{lab} ({', '.join(other)} in {len(bad)} member(s))")
     if failing:
-        info["message"] += "; members of " + "; ".join(failing) + " fail a check that sizing does not select for"
+        info["message"] += "; members of " + "; ".join(failing) + " still fail a check after sizing"
+    known = {e.get("check") for e in info.get("no_section_passes", [])}
+    deck = sorted({c.check for c in outcome.checks if c.check.startswith("deflection")
+                   and not c.utilization <= 1.0 and c.check not in known})
+    if deck:
+        info["message"] += f"; the deck still fails {', '.join(deck)} after sizing"
     return info
 
 

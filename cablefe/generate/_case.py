@@ -285,8 +285,14 @@ def deck_supports(case: CaseText, layout: dict, ends: Sequence[int], beams: bool
 
 
 def bridge_loads(case: CaseText, layout: dict, span: float, values: Mapping[str, Any],
-                 temperature_members: Sequence[str], deck_word: str = "deck") -> None:
-    """Load cases and combinations shared by the bridge families."""
+                 temperature_members: Sequence[str], deck_word: str = "deck",
+                 watch_members: Sequence[str] = ()) -> None:
+    """Load cases, combinations and the crowd study shared by the bridge families.
+
+    ``watch_members``: patterns of the members (hangers, stays) whose
+    tension envelope the crowd study finds; ``{tag}`` stands for the
+    first plane's tag.
+    """
     planes = len(layout["nodes"])
     ws = values["superimposed"] / planes
     crowd = values["crowd"] * values["width"] / planes
@@ -321,6 +327,26 @@ def bridge_loads(case: CaseText, layout: dict, span: float, values: Mapping[str,
     case.kv("members", list(temperature_members))
     case.kv("temperature", float(dt))
     combinations(case, "dead", "deck")
+    tag, lane = next(iter(layout["nodes"].items()))
+    walkway = values["crowd"] * values["width"]
+    live_study(case, "crowd", "Worst crowd patches: where must the crowd stand for the largest deflection, "
+               "tension or slackening? Each watched response gets its own patch from its influence line. "
+               + ("The whole walkway's crowd is put on the first plane's girder (the lane): an eccentric "
+                  "crowd, conservative for that plane's members, which stand for the other plane by symmetry."
+                  if planes > 1 else ""),
+               lane, f"[0, 0, {num(-walkway / KN, 6)}]", [*lane, *(p.format(tag=tag) for p in watch_members)])
+
+
+def live_study(case: CaseText, name: str, comment: str, lane: Sequence[str], load: str,
+               watch: Sequence[str]) -> None:
+    """A ``[[studies]]`` patch study along ``lane`` from the permanent state."""
+    case.table("studies", comment, array=True)
+    case.kv("name", name)
+    case.kv("kind", "patch")
+    case.kv("base", "permanent")
+    case.kv("path", list(lane))
+    case.kv("load", load, raw=True)
+    case.kv("watch", list(watch))
 
 
 def combinations(case: CaseText, dead: str, superimposed: str, live=("crowd-full", "crowd-half"),

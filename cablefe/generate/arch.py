@@ -117,7 +117,7 @@ def build(values, command: str) -> str:
     case.comment("Deck girders (ties) D<plane><i>-<i+1>" + (" and cross beams X<i>." if planes == 2 else "."))
     c.deck_members(case, layout, True)
 
-    c.bridge_loads(case, layout, L, values, ["H*"])
+    c.bridge_loads(case, layout, L, values, ["H*"], watch_members=["H{tag}*"])
 
     case.table("shape", "Form-finding (`cablefe shape`, and `cablefe run` first): find the hanger lengths "
                "that hold the deck level under the permanent loads.")

@@ -132,6 +132,18 @@ def _radial(values):
     return ids, np.array(xyz), np.array(fixed), members, np.array(q), np.pi * R**2, ("R*", "C*")
 
 
+def _lane(values, saddle: bool) -> list[str]:
+    """Node ids of a line of cables across the middle, from edge to edge."""
+    if saddle:
+        nx = max(2, int(round(values["span_x"] / values["spacing"])))
+        ny = max(2, int(round(values["span_y"] / values["spacing"])))
+        return [f"N{i}_{ny // 2}" for i in range(nx + 1)]
+    m, nr = int(values["rings"]), int(values["radials"])
+    west = [f"N{k}_{0}" for k in range(m, 0, -1)]
+    east = [f"N{k}_{nr // 2}" for k in range(1, m + 1)] if nr % 2 == 0 else []
+    return west + ["N0"] + east
+
+
 def build(values, command: str) -> str:
     saddle = values["layout"] == "saddle"
     ids, xyz, fixed, members, q, plan_area, patterns = (_saddle if saddle else _radial)(values)
@@ -205,6 +217,13 @@ def build(values, command: str) -> str:
     case.kv("members", ["*"])
     case.kv("temperature", float(values["delta_t"]))
     c.combinations(case, "dead", "cladding", live=("snow-full", "snow-half"))
+    lane = _lane(values, saddle)
+    on_lane = set(lane)
+    lane_members = [mid for (mid, a, b) in members if ids[a] in on_lane and ids[b] in on_lane]
+    c.live_study(case, "snow", "Worst snow patches along a line of cables across the middle of the net "
+                 "(drifts, partial clearing): the lane's cables carry the snow-full load per length, placed "
+                 "where each watched deflection or tension is most adverse.",
+                 lane, f"[0, 0, {c.num(-snow / KN, 6)}]", [*lane, *lane_members])
 
     case.table("shape", "Form-finding (`cablefe shape`, and `cablefe run` first) by force density: "
                "each cable family keeps its force density; supported nodes stay put.")

@@ -133,7 +133,7 @@ def build(values, command: str) -> str:
                 for j in range(1, len(chain)):
                     c.member(case, f"P{p}{tag}-{j}", "beam", chain[j - 1], chain[j], "pylon")
 
-    c.bridge_loads(case, layout, L, values, ["S*"])
+    c.bridge_loads(case, layout, L, values, ["S*"], watch_members=["S*{tag}*"])
 
     supported = {0, stations, *pylon_station}
     case.table("shape", "Form-finding (`cablefe shape`, and `cablefe run` first): find the stay lengths "

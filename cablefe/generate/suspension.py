@@ -170,7 +170,7 @@ def build(values, command: str) -> str:
                          pretension=H * chord / values["backstay_span"])
         temperature.append("BS*")
 
-    c.bridge_loads(case, layout, L, values, temperature)
+    c.bridge_loads(case, layout, L, values, temperature, watch_members=["H{tag}*"])
 
     mid = [n // 2] if n % 2 == 0 else [n // 2, n // 2 + 1]
     case.table("shape", "Form-finding (`cablefe shape`, and `cablefe run` first): find the unstressed "

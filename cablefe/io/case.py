@@ -68,9 +68,12 @@ Extensions to the interface page
     ``deck = ["D*"]``: node ids or patterns whose largest vertical
     deflection is reported; validated here (unknown keys, patterns that
     match no node) and kept in ``CaseSpec.extra["report"]``.
-``[studies]``, ``[modes]``
-    Not implemented in this version: rejected with a message saying so
-    (:data:`NOT_IMPLEMENTED`), never accepted and ignored.
+``[[studies]]``
+    Live-load studies: read by :mod:`cablefe.io.case_studies`.
+``[modes]``
+    Natural modes and the pedestrian check: read by :mod:`cablefe.io.case_modes`.
+A table whose feature this version does not have is listed in
+:data:`NOT_IMPLEMENTED` (none now) and rejected with a message saying so.
 
 Size limit: a case whose model would have more than :data:`MAX_DOFS`
 degrees of freedom or :data:`MAX_ELEMENTS` elements (``divide`` included) is
@@ -155,7 +158,7 @@ __all__ = [
 
 TOP_LEVEL_KEYS = ("title", "units", "materials", "sections", "nodes", "supports", "members",
                   "loads", "combinations", "shape", "analysis", "node_table", "member_table",
-                  "beam_reference", "design", "catalogues", "modes")
+                  "beam_reference", "design", "catalogues", "studies", "modes")
 #: Top-level tables validated here and kept in ``CaseSpec.extra`` for the
 #: features that read them.
 PASS_THROUGH_KEYS = ("report",)
@@ -163,7 +166,6 @@ PASS_THROUGH_KEYS = ("report",)
 #: case that uses one is rejected (never read and ignored).  A feature that
 #: lands removes its entry here (and validates its table in the reader).
 NOT_IMPLEMENTED: Mapping[str, str] = {
-    "studies": "studies (parameter, load-position and sensitivity runs)",
 }
 REPORT_KEYS = ("deck",)
 MATERIAL_KEYS = ("E", "G", "unit_weight", "density", "alpha", "fy")
@@ -515,10 +517,14 @@ class _Reader:
         shape = self.shape(data["shape"], cases) if "shape" in data else None
         analysis = self.analysis(data.get("analysis", {}))
         beam_reference = self.beam_reference(data.get("beam_reference", {}))
+        names = [c.name for c in combinations] or list(dict.fromkeys(load.case for load in loads))
+        studies = ()
+        if "studies" in data:   # validated and used (cablefe.io.case_studies)
+            from .case_studies import read_studies
+            studies = read_studies(self, data["studies"], names)
         modes = None
         if "modes" in data:   # validated and used (cablefe.io.case_modes)
             from .case_modes import read_modes
-            names = [c.name for c in combinations] or list(dict.fromkeys(load.case for load in loads))
             modes = read_modes(self, data["modes"], names)
         extra = {}
         if "report" in data:
@@ -529,7 +535,7 @@ class _Reader:
                         nodes=nodes, supports=supports, members=tuple(members), loads=tuple(loads),
                         combinations=tuple(combinations), shape=shape, analysis=analysis,
                         beam_reference=beam_reference, source=self.source, raw=data, extra=extra,
-                        design=design, catalogues=catalogues, modes=modes)
+                        design=design, catalogues=catalogues, studies=studies, modes=modes)
 
     # -- materials and sections ----------------------------------------------
     def materials(self, value) -> dict[str, Material]:

@@ -137,7 +137,8 @@ def _cutting(out: Path, units) -> str:
         t[1] += np.array([0.0] + [float(x) for x in r[1:]])
     tot_rows = [[_e(fam), str(n)] + [f"{v[k]:.{digits}f}" for k in lengths] for fam, (n, v) in totals.items()]
     text = (f"<p>Shaped case: <code>{shaped}</code>; lengths rounded to 0.1 mm "
-            f"(fabrication precision), tension in {_e(units.force)}. Full precision in <code>{path.name}</code>.</p>")
+            f"(fabrication precision), tension in {_e(units.force)}, as in <code>{path.name}</code>; "
+            f"totals per member group, section and in all in <code>{path.stem}-totals.csv</code>.</p>")
     text += "<h3>Totals per cable family (id prefix)</h3>" + _table(
         ["family", "members"] + [header[k] for k in lengths], tot_rows, left=1)
     text += (f"<details><summary>Cutting lengths of all {len(body)} members</summary>"
@@ -365,7 +366,7 @@ def _design(out: Path, design_data, figure) -> str:
     return "\n".join(parts)
 
 
-def _sizing(design_data) -> str:
+def _sizing(design_data, units) -> str:
     sizing = design_data.get("sizing") if isinstance(design_data, dict) else None
     if not sizing:
         return '<p class="muted">No [[design.size]] groups: no sizing in this run.</p>'
@@ -376,9 +377,20 @@ def _sizing(design_data) -> str:
     parts.append(_table(["iteration"] + groups, rows, left=0))
     final = sizing.get("final", {})
     if final:
-        parts.append(_table(["group", "section", "passes"],
-                            [[_e(g), _e(v.get("section")), "yes" if v.get("passes") else "<span class=fail>no</span>"]
+        parts.append(_table(["group", "section", "passes", "no catalogue section passes"],
+                            [[_e(g), _e(v.get("section")), "yes" if v.get("passes") else "<span class=fail>no</span>",
+                              ("<span class=fail>" + _e(", ".join(v["no_section_passes"])) + "</span>")
+                              if v.get("no_section_passes") else "—"]
                              for g, v in final.items()], left=2))
+    if sizing.get("no_section_passes"):
+        parts.append("<p>Checks that no catalogue section makes pass (they did not drive the choice; "
+                     "the engineer must change the scheme, the loads or the catalogue):</p>" + _table(
+                         ["check", "groups", "utilization with the largest section(s)"],
+                         [[_e(e.get("check")), _e(", ".join(e.get("groups", []))),
+                           "slack" if e.get("utilization_with_largest") is None and e.get("check") == "slack"
+                           else fmt(e["utilization_with_largest"], 4) if e.get("utilization_with_largest") is not None
+                           else f"uplift {fmt(e['largest_uplift'], 4)} {_e(units.force)}" if "largest_uplift" in e
+                           else "—"] for e in sizing["no_section_passes"]], left=2))
     return "\n".join(parts)
 
 
@@ -419,7 +431,7 @@ def report_html(results, out, case_path, caution: str, figures: dict) -> str:
     section("studies", "Study envelopes", _studies(out, units))
     section("modes", "Modes and pedestrian comfort", _modes(out))
     section("design", "Design checks", _design(out, design_data, figures.get("__utilization__")))
-    section("sizing", "Sizing", _sizing(design_data))
+    section("sizing", "Sizing", _sizing(design_data, units))
     body.append(f'<p class="caution"><b>Caution.</b> {_e(caution)}</p>')
     return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
             f"<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\"><title>{_e(title)}</title>"
