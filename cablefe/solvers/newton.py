@@ -128,8 +128,20 @@ class _Step:
     tangent: object = None       # the tangent at the converged state
 
 
+def _dot(a, b) -> float:
+    """``a . b`` of two vectors by numpy's own loop: BLAS ``ddot`` (what ``@``
+    and ``np.linalg.norm`` call) wakes its threads for vectors of this size,
+    which cost 1-3 ms a call instead of 0.02 ms on a busy 2-core machine
+    (measured at 28 812 entries: 0.9 s of a 6-iteration solve)."""
+    return float(np.einsum("i,i->", a, b))
+
+
+def _norm(a) -> float:
+    return math.sqrt(_dot(a, a)) if np.all(np.isfinite(a)) else math.inf
+
+
 def _relative(r, ref) -> float:
-    n = float(np.linalg.norm(r))
+    n = _norm(r)
     return n / ref if math.isfinite(n) else math.inf
 
 
@@ -162,11 +174,11 @@ def _line_search(problem, state, du, r, ratio, lam, settings: NewtonSettings):
     (``s(0) >= 0``: an indefinite tangent), or the trials do not reduce the
     residual, the search backtracks on the residual norm instead.
     """
-    s0 = float(du @ r)
+    s0 = _dot(du, r)
     trial = problem.advance(state, du)
     r1, ref1, K1 = problem.evaluate(trial, lam, True)
     ratio1 = _relative(r1, ref1)
-    s1 = float(du @ r1) if math.isfinite(ratio1) else math.inf
+    s1 = _dot(du, r1) if math.isfinite(ratio1) else math.inf
     if math.isfinite(ratio1) and (abs(s1) <= SLOPE_RATIO * abs(s0) or (ratio1 < ratio and s1 <= 0.0)):
         return trial, r1, ref1, K1, ratio1, 1.0
     best = (ratio1, 1.0, trial, r1, ref1)
@@ -185,7 +197,7 @@ def _line_search(problem, state, du, r, ratio, lam, settings: NewtonSettings):
             if not math.isfinite(ratio_t):
                 hi, s_hi, side = alpha, math.inf, 0
                 break
-            s_t = float(du @ r_t)
+            s_t = _dot(du, r_t)
             if ratio_t < best[0]:
                 best = (ratio_t, alpha, trial, r_t, ref_t)
             if abs(s_t) <= SLOPE_RATIO * abs(s0):
@@ -245,7 +257,7 @@ def indefinite_iterate(problem, K, du, r) -> bool:
     found = None if count is None else count(K, factorized_only=True)
     if found is not None:
         return found[1] > 0
-    return float(du @ r) > INDEFINITE_SLOPE * float(np.linalg.norm(du) * np.linalg.norm(r))
+    return _dot(du, r) > INDEFINITE_SLOPE * _norm(du) * _norm(r)
 
 
 #: iterations allowed to the first attempt at the whole load in one
@@ -415,8 +427,8 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
             # work of the load on the converged displacement against that on
             # the first tangent's (linear) prediction
             r0 = steps[0][2]
-            linear = -float(steps[0][0] @ r0)
-            moved = -float(sum(alpha * du for du, alpha, _ in steps) @ r0)
+            linear = -_dot(steps[0][0], r0)
+            moved = -_dot(sum(alpha * du for du, alpha, _ in steps), r0)
             softer = not (linear > 0.0 and moved <= SOFTENING_LIMIT * linear)
         total_iterations += result.iterations
         history.extend(result.history)
