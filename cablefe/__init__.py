@@ -42,13 +42,36 @@ def load_model(path) -> Model:
         raise exc.with_file(str(path)) from None
 
 
-def write_results(results: Results, folder, utilization=None) -> list[Path]:
-    """Write ``results.json``, one ``.vtu`` per result and ``results.pvd``."""
-    from .io.results_io import write_json, write_meshes
-    folder = Path(folder)
-    written = [write_json(results, folder / "results.json")]
-    written += write_meshes(results, folder, utilization)
-    return written
+def write_results(results: Results, folder, utilization=None, extra=None) -> list[Path]:
+    """Write ``results.json``, one ``.vtu`` per result and ``results.pvd`` as one set.
+
+    The files are written into a staging folder inside ``folder`` and put in
+    place together; files of an earlier set in ``folder`` that are not part
+    of this one are removed (only files cablefe wrote, listed in
+    ``folder/.cablefe-manifest.json``), as are temporaries of killed runs.
+    An exception or interrupt while writing leaves the earlier set as it was.
+
+    Parameters
+    ----------
+    results : Results
+    folder : output folder (created if missing)
+    utilization : result name -> {member id: utilization}, optional
+    extra : dict, optional, entries added at the top of ``results.json``
+
+    Returns
+    -------
+    list of Path, the files written (final names).
+
+    Raises
+    ------
+    cablefe.io.atomic.OutputError
+        ``folder`` is a file, read-only, or cannot be made; nothing written.
+    """
+    from .io.atomic import ResultFolder
+    from .io.results_io import write_result_files
+    with ResultFolder(folder) as out:
+        write_result_files(results, out.staging, utilization, extra)
+    return out.committed
 
 
 __all__ = ["CAUTION", "CaseError", "MechanismError", "Model", "Results", "build_model",

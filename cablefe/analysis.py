@@ -15,7 +15,8 @@ from .solvers.static import StaticProblem, StaticResult, _unsolved, solve_combin
 log = logging.getLogger(__name__)
 
 
-def solve(model: Model, names=None, progress=None, linear_solver: str | None = None) -> Results:
+def solve(model: Model, names=None, progress=None, linear_solver: str | None = None,
+          on_result=None) -> Results:
     """Solve every combination (or every load case when there are none).
 
     Parameters
@@ -26,6 +27,9 @@ def solve(model: Model, names=None, progress=None, linear_solver: str | None = N
     progress : callable(name, load_factor, iterations), optional
     linear_solver : str, optional
         Backend name overriding ``[analysis] solver``.
+    on_result : callable(StaticResult), optional
+        Called with each result as soon as it is solved, so that a caller
+        keeps what was solved when a later result raises or is interrupted.
 
     Returns
     -------
@@ -60,6 +64,8 @@ def solve(model: Model, names=None, progress=None, linear_solver: str | None = N
             # one bad result never stops the others: it is marked failed
             log.debug("%s failed", name, exc_info=True)
             items.append(failed_result(model, name, factors, exc, assembler, solver))
+        if on_result is not None:
+            on_result(items[-1])
     return Results(model, tuple(items))
 
 

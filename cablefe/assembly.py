@@ -163,7 +163,7 @@ class Assembler:
             strain = lam * loads.strain[f]
             if f == "bar":
                 out[f] = bar.response(xi, xj, p["unstressed_length"] * (1.0 + strain), p["EA"],
-                                      p["tension_only"], want_tangent)
+                                      p["tension_only"], want_tangent, p.get("slack_stiffness"))
             elif f == "cable":
                 L0, weight = cable_inputs(table, loads, lam)
                 # an unconverged inner solve is marked in r.converged and fails

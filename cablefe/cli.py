@@ -6,8 +6,11 @@ written); 2 bad input or usage, with one line on stderr naming file and key.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import logging
+import signal
 import sys
+import threading
 import time
 from pathlib import Path
 
@@ -146,10 +149,12 @@ def _summary(results, design=None) -> None:
         print(line)
 
 
-def _shape(case_path, shaped_path, solver=None) -> bool:
+def _shape(case_path, shaped_path, solver=None, shown_as=None) -> bool:
     """Form-find ``case_path`` into ``shaped_path`` (+ cutting CSV); prints progress and targets.
 
-    Returns False (after a message on stderr) when the shape was not found.
+    ``shown_as`` is the path printed for the shaped case (its final name when
+    ``shaped_path`` is in a staging folder).  Returns False (after a message
+    on stderr) when the shape was not found; nothing is written then.
     """
     from . import read_case
     from .errors import CaseError
@@ -175,8 +180,11 @@ def _shape(case_path, shaped_path, solver=None) -> bool:
               + ("[beam_reference] keeps the beams' stress-free geometry and their found rotations.\n"
                  if found.spec.beam_reference else "") + CAUTION)
     written = write_shape_outputs(shaped_path, found.spec, found.cutting, header)
+    shown = Path(shown_as if shown_as is not None else shaped_path)
     print(f"shape found in {time.perf_counter() - t0:.2f} s"
           + (f", {found.iterations} iteration(s)" if found.targets else ""))
+    for line in found.log:
+        print(f"  {line}")
     if found.targets:
         print(f"  {'node':<12} {'axis':<4} {'target':>12} {'reached':>12} {'miss':>10}   ({u.length})")
         for t in found.targets:
@@ -184,28 +192,65 @@ def _shape(case_path, shaped_path, solver=None) -> bool:
                   f"{t.reached / u.length_scale:>12.6g} {t.miss / u.length_scale:>10.2e}")
     print(f"  re-solved under the permanent loads it moves at most "
           f"{_fmt(found.largest_movement / u.length_scale, u.length)}")
-    print(f"wrote {written[0]}, {written[1]}")
+    print(f"wrote {', '.join(str(shown.parent / Path(p).name) for p in written)}")
     return True
 
 
 def cmd_shape(args) -> int:
+    from .io.atomic import check_output_file
+    from .io.case_writer import cutting_path, cutting_totals_path
+    # before any work: a shaped case that cannot be written is a usage error
+    check_output_file(args.output, "the shaped case")
+    check_output_file(cutting_path(args.output), "the cutting table")
+    check_output_file(cutting_totals_path(args.output), "the cutting totals")
     ok = _shape(args.case, args.output, args.solver)
     print("caution: " + CAUTION)
     return 0 if ok else 1
 
 
-def cmd_solve(args, shape_first=False) -> int:
-    from . import load_model, read_case, solve, write_results
-    out = Path(args.output)
-    case = args.case
-    if shape_first and read_case(case).shape is not None:
-        case = out / "shaped.toml"
-        if not _shape(args.case, case, args.solver):
-            print("caution: " + CAUTION)
-            return 1
-    model = load_model(case)
-    t0 = time.perf_counter()
+@contextlib.contextmanager
+def _terminate_as_interrupt():
+    """SIGTERM stops the run as Ctrl-C does, so that what was solved is still written."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
 
+    def stop(signum, frame):
+        raise KeyboardInterrupt
+
+    old = signal.signal(signal.SIGTERM, stop)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, old)
+
+
+def _check_only(model, only, case) -> None:
+    from .errors import CaseError
+    if only is None:
+        return
+    known = [n for n, _ in model.results_to_run()]
+    for name in only:
+        if name not in known:
+            raise CaseError("", f"--only {name}: no result of that name (known: {', '.join(known) or 'none'})",
+                            str(case))
+
+
+def cmd_solve(args, shape_first=False) -> int:
+    from . import load_model, read_case, solve
+    from .errors import CaseError
+    from .io.atomic import ResultFolder
+    from .io.results_io import write_result_files
+    from .results import Results
+    out = Path(args.output)
+    # the output folder is checked before any work, and every input error is
+    # found before anything is written (exit 2, the earlier set untouched)
+    folder = ResultFolder(out).check()
+    shaping = shape_first and read_case(args.case).shape is not None
+    model = None
+    if not shaping:
+        model = load_model(args.case)
+        _check_only(model, args.only, args.case)
     live = sys.stderr.isatty()
 
     def progress(name, lam, it):
@@ -214,32 +259,89 @@ def cmd_solve(args, shape_first=False) -> int:
             print(f"\r  solving {name}: load factor {lam:.3f}, {it} iterations ",
                   end="\n" if lam >= 1.0 else "", file=sys.stderr, flush=True)
 
-    results = solve(model, names=args.only, progress=progress, linear_solver=args.solver)
-    written = write_results(results, out)
-    design = done = None
-    if shape_first and model.spec.studies:   # `run`: the studies after the solve, before design
-        from .studies.command import add_to_results, run_studies
-        done = run_studies(results, out, workers=args.workers, scheduler=args.scheduler, solver=args.solver,
-                           progress_stream=sys.stderr if live else None)
-        written += [add_to_results(results, out, done)] + done.written
-    modes_status = 0
-    if shape_first and model.spec.modes is not None:   # after solve (and studies), before design and report
-        modes_status = cmd_modes(args, model, results)
-    if shape_first:  # `run` adds design checks (and sizing), plots and a report
-        from .design.stage import design_stage
-        from .report.html import write_report
-        design = design_stage(results, out, CAUTION, args.case, args.solver)
-        if design is not None:
-            results, written = design.results, written + list(design.written)
-            if done is not None:   # design rewrote results.json
-                add_to_results(results, out, done)
-        written += write_report(results, out, case, CAUTION, design)
+    items, stopped, failure = [], False, None
+    with _terminate_as_interrupt(), folder:
+        case = args.case
+        if shaping:
+            staged = folder.staging / "shaped.toml"
+            case = folder.final(staged)
+            if not _shape(args.case, staged, args.solver, shown_as=case):
+                folder.discard()
+                print("caution: " + CAUTION)
+                return 1
+            model = load_model(staged)
+            _check_only(model, args.only, args.case)
+        t0 = time.perf_counter()
+        try:
+            solve(model, names=args.only, progress=progress, linear_solver=args.solver, on_result=items.append)
+        except KeyboardInterrupt:
+            stopped = True
+        except CaseError:
+            raise
+        except Exception as exc:  # a result that raised: keep what was solved before it
+            log.debug("solving failed", exc_info=True)
+            failure = f"{type(exc).__name__}: {exc}"
+        if live and (stopped or failure):
+            print(file=sys.stderr)
+        results = Results(model, tuple(items))
+        wanted = None if args.only is None else set(args.only)
+        missing = [n for n, _ in model.results_to_run() if (wanted is None or n in wanted)
+                   and n not in set(results.names)]
+        what = "interrupted" if stopped else "failed"
+        if missing and not items:
+            folder.discard()
+            print(f"cablefe: {what} while solving {missing[0]}"
+                  + (f" ({failure})" if failure else "") + f"; no result was solved, nothing written to {out}",
+                  file=sys.stderr)
+            print("caution: " + CAUTION)
+            return 130 if stopped else 1
+        extra = None
+        if missing:
+            extra = {"incomplete": {"reason": f"{what} while solving {missing[0]}"
+                                    + (f": {failure}" if failure else ""), "not_solved": missing}}
+        design = done = None
+        modes_status = 0
+        try:
+            write_result_files(results, folder.staging, extra=extra)
+            if shape_first and model.spec.studies and not missing:   # `run`: after the solve, before design
+                from .studies.command import add_to_results, run_studies
+                done = run_studies(results, folder.staging, workers=args.workers, scheduler=args.scheduler,
+                                   solver=args.solver, progress_stream=sys.stderr if live else None)
+                add_to_results(results, folder.staging, done)
+            if shape_first and model.spec.modes is not None and not missing:
+                # after solve, before design and report; written with the set
+                staged_args = argparse.Namespace(**{**vars(args), "output": str(folder.staging)})
+                modes_status = cmd_modes(staged_args, model, results, shown_folder=out)
+            if shape_first:  # `run` adds design checks (and sizing), plots and a report
+                from .report.html import write_report
+                if not missing:   # no design verdict on part of the results
+                    from .design.stage import design_stage
+                    # envelopes of this run's studies, else those a `study` run left in OUT
+                    design = design_stage(results, folder.staging, CAUTION, args.case, args.solver,
+                                          read_from=None if done is not None else out)
+                    if design is not None:
+                        results = design.results
+                        if done is not None:   # design rewrote results.json
+                            add_to_results(results, folder.staging, done)
+                write_report(results, folder.staging, case, CAUTION, design)
+            written = folder.commit()
+        except OSError as exc:
+            folder.discard()
+            print(f"cablefe: {out}: cannot write the results: {exc.strerror or exc}; the folder keeps its "
+                  "earlier files", file=sys.stderr)
+            return 2
     print(f"solved {len(results.items)} result(s) in {time.perf_counter() - t0:.2f} s")
     _summary(results, design)
     if done is not None:
         _study_summary(done, model.spec.units)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))
     print("caution: " + CAUTION)
+    converged = sum(r.converged for r in results.items)
+    if missing:
+        print(f"cablefe: {what} while solving {missing[0]}" + (f" ({failure})" if failure else "")
+              + f"; wrote the {len(results.items)} result(s) solved before it ({converged} converged) "
+              f"to {out}; not solved: {', '.join(missing)} (marked in results.json)", file=sys.stderr)
+        return 130 if stopped else 1
     if done is not None and done.failed:
         print(f"cablefe: failed solves in studies: {', '.join(done.failed)} (marked in envelope.json)",
               file=sys.stderr)
@@ -249,15 +351,20 @@ def cmd_solve(args, shape_first=False) -> int:
         return 1
     if not results.all_converged:
         bad = [r.name for r in results.items if not r.converged]
-        print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json)", file=sys.stderr)
+        print(f"cablefe: not converged: {', '.join(bad)} (marked in results.json and in the meshes' field "
+              "data; what converged is written)", file=sys.stderr)
         return 1
     if modes_status:
         return modes_status
     return 0
 
 
-def cmd_modes(args, model=None, results=None) -> int:
-    """Modes alone (``cablefe modes``) or as a step of ``run`` (model and results given)."""
+def cmd_modes(args, model=None, results=None, shown_folder=None) -> int:
+    """Modes alone (``cablefe modes``) or as a step of ``run`` (model and results given).
+
+    ``shown_folder``: the folder named in the printed paths (``run`` writes
+    into a staging folder that is moved into place at the end).
+    """
     from . import load_model
     from .io.modes_io import frequency_table
     from .vibration import ModesError, NotConverged, run_modes
@@ -272,7 +379,8 @@ def cmd_modes(args, model=None, results=None) -> int:
         print(f"cablefe: {args.case}: modes: {exc}", file=sys.stderr)
         return 1 if isinstance(exc, NotConverged) else 2
     print("\n".join(frequency_table(found)))
-    print(f"wrote {', '.join(str(p) for p in written)}")
+    shown = written if shown_folder is None else [Path(shown_folder) / Path(p).name for p in written]
+    print(f"wrote {', '.join(str(p) for p in shown)}")
     if alone:
         print("caution: " + CAUTION)
     return 0

@@ -25,15 +25,21 @@ class DesignRun:
     settled: bool = True         # sizing: False when the choice oscillated or ran out of iterations
 
 
-def design_stage(results, out, caution: str, case_path=None, linear_solver=None, progress=None) -> DesignRun | None:
-    """Run ``[design]`` of a solved model; None when the case has none."""
+def design_stage(results, out, caution: str, case_path=None, linear_solver=None, progress=None,
+                 read_from=None) -> DesignRun | None:
+    """Run ``[design]`` of a solved model; None when the case has none.
+
+    Files are written into ``out``; study envelopes are read from
+    ``read_from`` (default ``out``: the command line writes into a staging
+    folder and reads the output folder's ``studies/``).
+    """
     from .. import write_results
     from ..io.design_io import read_envelopes, write_design
     spec = results.model.spec
     if spec.design is None:
         return None
     out = Path(out)
-    envelopes = read_envelopes(out)
+    envelopes = read_envelopes(out if read_from is None else read_from)
     sized_path, settled, sizing = None, True, None
     if spec.design.size:
         from .sizing import size_members, write_sized_case

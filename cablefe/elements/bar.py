@@ -3,7 +3,11 @@
 Geometrically exact: the axial force follows the engineering strain of the
 unstressed length, ``N = EA (L - L0) / L0``, with L the current chord.  A
 ``tension_only`` element whose chord is shorter than ``L0`` is slack and
-carries nothing (zero force and zero stiffness).
+carries nothing (zero force and zero stiffness) -- unless given a
+``slack_stiffness`` ratio r > 0 (form-finding uses it while searching, never
+for a final equilibrium): a slack element then carries the small force
+``r EA (L - L0) / L0`` with stiffness ``r EA / L0``, so that a slack member
+does not make the structure a mechanism.
 """
 from __future__ import annotations
 
@@ -38,7 +42,8 @@ class BarResponse:
         return np.repeat(self.tension[:, None], 2, axis=1)
 
 
-def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True) -> BarResponse:
+def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True,
+             slack_stiffness=None) -> BarResponse:
     """Internal forces and tangent stiffness of straight bars.
 
     Parameters
@@ -48,6 +53,9 @@ def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True
     EA : (n,) axial stiffness, N
     tension_only : (n,) bool, optional
     want_tangent : bool
+    slack_stiffness : float or (n,) array, optional
+        Ratio of the stiffness kept by a slack tension-only bar (default 0:
+        none).  A regularisation for searching, not a physical property.
 
     Returns
     -------
@@ -65,12 +73,13 @@ def response(xi, xj, unstressed_length, EA, tension_only=None, want_tangent=True
     e = d / L_safe[:, None]
     N = EA * (L - L0) / L0
     slack = np.zeros(len(L), dtype=bool) if tension_only is None else (np.asarray(tension_only) & (N < 0.0))
-    N = np.where(slack, 0.0, N)
+    keep = 0.0 if slack_stiffness is None else np.broadcast_to(np.asarray(slack_stiffness, dtype=float), N.shape)
+    N = np.where(slack, keep * N, N)
     f = np.concatenate([-N[:, None] * e, N[:, None] * e], axis=1)
     K = None
     if want_tangent:
         eet = np.einsum("ni,nj->nij", e, e)
-        k_elastic = np.where(slack, 0.0, EA / L0)[:, None, None] * eet
+        k_elastic = np.where(slack, keep * EA / L0, EA / L0)[:, None, None] * eet
         k_geometric = (N / L_safe)[:, None, None] * (np.eye(3)[None] - eet)
         k = k_elastic + k_geometric
         K = np.empty((len(L), 6, 6))

@@ -28,7 +28,7 @@ import numpy as np
 import tomli_w
 
 from ..spec import CaseSpec
-from .atomic import atomic_path
+from .atomic import atomic_path, clean_stale_temporaries
 
 
 def cutting_path(shaped_path) -> Path:
@@ -219,6 +219,8 @@ def write_shape_outputs(path, spec: CaseSpec, table, header: str = "") -> tuple[
     text = tomli_w.dumps(shaped_case_dict(spec))
     rows = cutting_csv_text(table, spec.units)
     totals = cutting_totals_csv_text(table, spec.units, {m.id: m.section for m in spec.members})
+    # temporaries of a killed earlier run beside these files
+    clean_stale_temporaries(path.parent, (path.name, csv_path.name, totals_path.name))
     with atomic_path(path) as tmp_case, atomic_path(csv_path) as tmp_csv, atomic_path(totals_path) as tmp_tot:
         tmp_case.write_text(comment + text, encoding="utf-8")
         tmp_csv.write_text(rows, encoding="utf-8")

@@ -77,11 +77,29 @@ def _read_json(path: Path):
         return None
 
 
-def _kv(value) -> str:
-    """A small dict from results.json as a definition table."""
+def _short(v):
+    """Numbers to 4 significant digits (lists too); other values as JSON text."""
+    if isinstance(v, bool) or v is None:
+        return json.dumps(v)
+    if isinstance(v, (int, float)):
+        return f"{v:.4g}"
+    if isinstance(v, list) and all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in v):
+        return "[" + ", ".join(f"{x:.4g}" for x in v) + "]"
+    return json.dumps(v) if isinstance(v, (dict, list)) else str(v)
+
+
+def _kv(value, units=None) -> str:
+    """A small dict from results.json as a definition table, with units where known."""
     if isinstance(value, dict):
-        return _table(["key", "value"], [[_e(k), _e(json.dumps(v) if isinstance(v, (dict, list)) else v)]
-                                         for k, v in value.items()], left=2)
+        def unit(key):
+            if units is None:
+                return ""
+            if "moment" in key:
+                return f" [{units.force}·{units.length}]"
+            if "force" in key or "load" in key:
+                return f" [{units.force}]"
+            return ""
+        return _table(["key", "value"], [[_e(k + unit(k)), _e(_short(v))] for k, v in value.items()], left=2)
     return _e(json.dumps(value))
 
 
@@ -226,7 +244,7 @@ def _result_section(results, name, entry, units, figure) -> str:
             parts.append(f"<p>Supports pulling down (hold-down or uplift): {_e(', '.join(up))}.</p>")
     for key, title in (("equilibrium", "Equilibrium check"), ("stability", "Stability")):
         if key in entry:
-            parts.append(f"<h4>{title}</h4>" + _kv(entry[key]))
+            parts.append(f"<h4>{title}</h4>" + _kv(entry[key], units if key == "equilibrium" else None))
     if entry.get("path"):
         path = entry["path"]
         show = path if len(path) <= 30 else path[:: max(1, len(path) // 30)] + [path[-1]]

@@ -29,6 +29,22 @@ Two methods, chosen by ``[shape] method``:
     :func:`length_sensitivity`).  The steps are least-squares solutions
     (minimum-norm when there are more unknowns than targets).
 
+    From a rough sketch.  A drawing that is only roughly right (nodes off
+    by a metre, no pretension, tension-only members at zero strain) often
+    has no equilibrium for Newton's method to start from: members without
+    tension have no stiffness across them.  Then the adjusted members are
+    first shortened to a small strain (:data:`START_STRAIN`) and the
+    permanent loads are applied along their path, which brings the sketch
+    into a stable, tensioned equilibrium.  Every step is held in a trust
+    region on the target miss (neither the predicted target movement nor
+    any length change may exceed the radius; a step that does not lower the
+    miss is retried smaller, a good one widens the region).  While
+    searching, slack tension-only bars keep :data:`SLACK_STIFFNESS` of their
+    EA so that one slack hanger does not make the structure a mechanism;
+    once the targets are met the exact model takes over, and the shape is
+    accepted only in its equilibrium.  :attr:`ShapeResult.log` says how the
+    shape was reached and how many iterations each stage took.
+
 Both methods end the same way: the found coordinates and unstressed lengths
 are turned into a case (:func:`shaped_case`), whose model -- loads rebuilt on
 the found geometry -- is solved under the permanent loads from its own
@@ -45,8 +61,10 @@ All quantities SI (N, m, N/m).
 """
 from __future__ import annotations
 
+import contextlib
 import logging
 from dataclasses import dataclass, replace
+from types import MappingProxyType
 from typing import Callable, Mapping
 
 import numpy as np
@@ -158,6 +176,8 @@ class ShapeResult:
     largest_movement : largest node displacement when the shaped model is
         solved again under the permanent loads, m
     cutting : CuttingTable
+    log : lines describing how the shape was reached (first shape, regularised
+        search, final iterations), for the command line
     """
 
     spec: CaseSpec
@@ -168,6 +188,7 @@ class ShapeResult:
     iterations: int
     largest_movement: float
     cutting: CuttingTable
+    log: tuple[str, ...] = ()
 
 
 # ---------------------------------------------------------------------------
@@ -293,6 +314,35 @@ def _equilibrium(model: Model, factors, settings, linear_solver) -> StaticResult
     if not res.converged:
         raise ShapeError(f"no equilibrium under the permanent loads: {res.outcome.message}")
     return res
+
+
+class _SearchNotes(logging.Filter):
+    """Warnings of the equilibria on the way (not results): kept at info level only."""
+
+    def filter(self, record):
+        if record.levelno == logging.WARNING:
+            log.info("while searching: %s", record.getMessage())
+            return False
+        return True
+
+
+@contextlib.contextmanager
+def _searching():
+    """Hold back the solver's warnings about intermediate shapes of a search.
+
+    A rough sketch passes through states (overstretched cables, indefinite
+    tangents) that say nothing about the found shape; the found shape's own
+    equilibrium is solved again afterwards, with its warnings.
+    """
+    notes = _SearchNotes()
+    loggers = [logging.getLogger(n) for n in ("cablefe.solvers.static", "cablefe.solvers.newton")]
+    for lg in loggers:
+        lg.addFilter(notes)
+    try:
+        yield
+    finally:
+        for lg in loggers:
+            lg.removeFilter(notes)
 
 
 def _movement(model: Model, result: StaticResult) -> float:
@@ -538,7 +588,8 @@ def length_sensitivity(model: Model, state: State, loads: LoadVectors, responses
     Notes
     -----
     Bar: ``N = EA (L - L0')/L0'`` with ``L0' = L0 (1 + eps)``, so
-    ``dN/dL0 = -EA L (1 + eps)/L0'^2``; slack bars give zero.
+    ``dN/dL0 = -EA L (1 + eps)/L0'^2``; slack bars give zero (their
+    ``slack_stiffness`` ratio of it while searching).
 
     Cable: with the end forces (H, V) held, Irvine's chord equations
     (Irvine 1981, Cable Structures, §1.3; W = w L0') give
@@ -558,7 +609,9 @@ def length_sensitivity(model: Model, state: State, loads: LoadVectors, responses
         L0e = p["unstressed_length"] * grow
         d = state.positions[t.nodes[:, 1]] - state.positions[t.nodes[:, 0]]
         e = d / np.where(r.length > 0.0, r.length, 1.0)[:, None]
-        dN = np.where(r.slack, 0.0, -p["EA"] * r.length * grow / L0e**2)
+        # a slack bar keeps its regularising stiffness ratio (zero unless searching)
+        keep = p.get("slack_stiffness", 0.0)
+        dN = np.where(r.slack, keep, 1.0) * (-p["EA"] * r.length * grow / L0e**2)
         out["bar"] = np.concatenate([-dN[:, None] * e, dN[:, None] * e], axis=1)
     t = model.families["cable"]
     if len(t):
@@ -672,6 +725,39 @@ def _unmet_message(spec, reports, tol, reason):
                    f"{shown}{more}")
 
 
+#: stiffness ratio kept by slack tension-only members while searching: enough
+#: to keep a slack hanger from making the structure a mechanism, small
+#: enough not to hold up anything it should not.  The final equilibrium is
+#: always the exact model's (no regularisation).
+SLACK_STIFFNESS = 1.0e-3
+
+
+def _regularised(model: Model) -> Model:
+    """The model with slack tension-only bars keeping :data:`SLACK_STIFFNESS` of their EA."""
+    t = model.families["bar"]
+    if not len(t) or not t.props["tension_only"].any():
+        return model
+    props = dict(t.props)
+    props["slack_stiffness"] = np.where(t.props["tension_only"], SLACK_STIFFNESS, 0.0)
+    fams = dict(model.families)
+    fams["bar"] = replace(t, props=MappingProxyType(props))
+    return replace(model, families=MappingProxyType(fams))
+
+
+def _has_tension_only_bars(model: Model) -> bool:
+    t = model.families["bar"]
+    return bool(len(t) and t.props["tension_only"].any())
+
+
+#: strain given to the adjusted members for the first shape when the drawing
+#: has no equilibrium to start from (members at zero strain, no pretension):
+#: about the strain of a steel cable at a fifth of its working stress
+#: (200 MPa / 200 GPa; common practice puts permanent cable stresses at
+#: 30-45 % of the breaking strength), enough geometric stiffness for Newton's
+#: method; the search changes the lengths from there
+START_STRAIN = 1.0e-3
+
+
 def _target_shape(spec, model0, factors, settings, linear_solver, progress):
     shape = spec.shape
     owner, labels = _adjust_owner(model0, shape)
@@ -683,10 +769,16 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
     beams = _has_beams(model0)
     settle = SETTLE_FRACTION * model_size(model0)
     tol = shape.tolerance
+    notes: list[str] = []
     if npar != len(t_values):
         log.warning("shape: %d target coordinate(s) and %d unknown length(s): the steps are least-squares "
                     "%s", len(t_values), npar,
                     "fits (targets may not all be met)" if len(t_values) > npar else "minimum-norm changes")
+
+    # longest member of each unknown: a step's length change, m per unit factor
+    group_length = np.zeros(npar)
+    adjusted = np.flatnonzero(owner >= 0)
+    np.maximum.at(group_length, owner[adjusted], L0_member[adjusted])
 
     def lengths(theta):
         out = L0_member.copy()
@@ -694,17 +786,50 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
         out[adj] = L0_member[adj] * theta[owner[adj]]
         return out
 
-    def build(X, theta):
-        return build_model(shaped_case(spec, model0, None if beams else X, lengths(theta)))
+    def build(X, theta, rotations=None):
+        # each trial starts from the last equilibrium; beams keep their
+        # stress-free geometry through [beam_reference] and the found rotations
+        if beams and rotations is None:
+            return build_model(shaped_case(spec, model0, None, lengths(theta)))
+        return build_model(shaped_case(spec, model0, X, lengths(theta), rotations))
+
+    # slack tension-only members keep a little stiffness while searching;
+    # the last iterations use the exact model
+    regular = _has_tension_only_bars(model0)
+    exact = not regular
+
+    def equilibrium(model):
+        return _equilibrium(model if exact else _regularised(model), factors, settings, linear_solver)
 
     theta = np.ones(npar)
     model = model0
-    result = _equilibrium(model, factors, settings, linear_solver)
+    try:
+        # a drawing that needs many cut increments is no start anyway: try it briefly
+        probe = replace(settings, max_cuts=min(settings.max_cuts, 3))
+        result = _equilibrium(model if exact else _regularised(model), factors, probe, linear_solver)
+        notes.append("start: the drawing as given")
+    except (ShapeError, MechanismError) as exc:
+        # a rough drawing (members at zero strain, no pretension) has no
+        # stiffness across its members for Newton's method to start from:
+        # give the adjusted members a small tension and let the loads bring
+        # the structure into its stable, tensioned equilibrium (the unknown
+        # lengths are changed from there anyway)
+        theta = np.full(npar, 1.0 / (1.0 + START_STRAIN))
+        model = build(None, theta)
+        try:
+            result = equilibrium(model)
+        except (ShapeError, MechanismError) as exc2:
+            raise ShapeError(f"no equilibrium of the drawing ({exc}), nor with the adjusted members "
+                             f"pretensioned to a strain of {START_STRAIN:g} ({exc2})") from None
+        notes.append(f"start: no equilibrium of the drawing as given ({_short(exc)}); first shape with the "
+                     f"adjusted members shortened to a strain of {START_STRAIN:g}")
     # positions and targets in site coordinates (the case's): the models built
     # on the way may each have their own local origin
     X = model.to_site(result.state.positions)
     best = np.inf
     stalled = shrinking = 0
+    radius = None          # trust region on the predicted target movement, m
+    searched = 0
 
     def reports():
         reached = X[t_nodes, t_axes]
@@ -716,9 +841,31 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
         moved = _movement(model, result)
         if progress is not None:
             progress(it, worst)
-        log.info("shape iteration %d: largest target miss %.3e m, settle movement %.3e m", it, worst, moved)
+        log.info("shape iteration %d: largest target miss %.3e m, settle movement %.3e m%s", it, worst, moved,
+                 "" if exact else " (slack members regularised)")
+        if worst <= tol and not exact:
+            # targets met with the regularised model: switch to the exact one
+            # (identical unless a tension-only member is slack) and go on
+            exact = True
+            searched = it
+            try:
+                result = equilibrium(model)
+            except (ShapeError, MechanismError) as exc:
+                unmet, msg = _unmet_message(spec, reports(), tol, f"the exact model has no equilibrium at the "
+                                            f"searched shape ({exc}): a tension-only member is slack there")
+                raise ShapeError(msg, unmet) from None
+            X = model.to_site(result.state.positions)
+            miss = X[t_nodes, t_axes] - t_values
+            worst = float(np.max(np.abs(miss)))
+            moved = _movement(model, result)
+            best, stalled, radius = np.inf, 0, None
+            log.info("shape: exact model at the searched shape: largest target miss %.3e m", worst)
         if worst <= tol and (beams or moved <= settle):
-            return model, result, X, lengths(theta), reports(), it
+            if regular:
+                notes.append(f"search: {searched} iteration(s) with slack members keeping {SLACK_STIFFNESS:g} of "
+                             f"their EA; exact model: {it - searched} more")
+            notes.append(f"{it} iteration(s) in all; largest target miss {_format_length(spec, worst)}")
+            return model, result, X, lengths(theta), reports(), it, tuple(notes)
         if it == shape.max_iterations:
             break
         if worst < 0.9 * best:
@@ -730,9 +877,11 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
                                             "may be out of reach of the adjusted lengths")
                 raise ShapeError(msg, unmet)
         step = np.zeros(npar)
+        J = None
         if worst > tol:
             loads = model.combined_loads(factors)
-            J = _target_jacobian(model, result, loads, owner, L0_start, target_dofs, npar, linear_solver)
+            J = _target_jacobian(model if exact else _regularised(model), result, loads, owner, L0_start,
+                                 target_dofs, npar, linear_solver)
             row = np.linalg.norm(J, axis=1)
             dead = (row <= 1e-12 * max(float(row.max(initial=0.0)), 1e-300)) & (np.abs(miss) > tol)
             if dead.any():
@@ -756,23 +905,64 @@ def _target_shape(spec, model0, factors, settings, linear_solver, progress):
             ratio = float(np.max(np.abs(step) / theta, initial=0.0))
             if ratio > 0.5:
                 step *= 0.5 / ratio
-        for attempt in range(6):
+            # trust region on the target miss (first radius: the largest
+            # miss): neither the predicted movement of the targets nor any
+            # length change may exceed it.  The second bound matters at a
+            # slack member, whose length barely moves anything until it is
+            # taut, and then moves its node one for one
+            if radius is None:
+                radius = max(worst, tol)
+            size = _trust_size(J, step, group_length)
+            if size > radius:
+                step *= radius / size
+        old = float(np.linalg.norm(miss))
+        for attempt in range(10):
             trial = theta + step
             try:
-                trial_model = build(X, trial)
-                trial_result = _equilibrium(trial_model, factors, settings, linear_solver)
+                trial_model = build(X, trial, result.state.rotations)
+                trial_result = equilibrium(trial_model)
             except (ShapeError, MechanismError) as exc:
-                if attempt == 5 or not step.any():
+                if attempt == 9 or not step.any():
                     unmet, msg = _unmet_message(spec, reports(), tol, f"equilibrium lost while adjusting: {exc}")
                     raise ShapeError(msg, unmet) from None
-                step *= 0.5
+                step *= 0.25
+                if radius is not None:
+                    radius *= 0.25
                 continue
-            break
+            if J is None or not step.any():
+                break
+            new_miss = trial_model.to_site(trial_result.state.positions)[t_nodes, t_axes] - t_values
+            new = float(np.linalg.norm(new_miss))
+            # accept a step that lowers the miss; otherwise shrink the region
+            if new < old or attempt == 9 or new <= tol:
+                predicted_miss = float(np.linalg.norm(miss + J @ step))
+                gain = (old - new) / max(old - predicted_miss, 1e-300)
+                size = _trust_size(J, step, group_length)
+                if gain > 0.75:
+                    radius = max(radius, 2.0 * size)
+                elif gain < 0.25:
+                    radius = 0.5 * size
+                break
+            log.info("shape: step rejected (miss %.3e -> %.3e m): trust region shrunk", old, new)
+            step *= 0.25
+            radius = _trust_size(J, step, group_length)
         theta, model, result = trial, trial_model, trial_result
         X = model.to_site(result.state.positions)
     # out of iterations: the loop only ends here when the targets were not met
     _, msg = _unmet_message(spec, reports(), tol, f"no convergence in {shape.max_iterations} iterations")
     raise ShapeError(msg, [r for r in reports() if abs(r.miss) > tol])
+
+
+def _trust_size(J, step, group_length) -> float:
+    """Size of a step for the trust region, m: the largest predicted target
+    movement or length change."""
+    return max(float(np.max(np.abs(J @ step), initial=0.0)),
+               float(np.max(np.abs(step) * group_length, initial=0.0)))
+
+
+def _short(exc, n=120) -> str:
+    text = str(exc)
+    return text if len(text) <= n else text[:n - 1] + "…"
 
 
 # ---------------------------------------------------------------------------
@@ -874,14 +1064,16 @@ def find_shape(spec: CaseSpec, linear_solver: str | None = None,
     factors = permanent_factors(shape)
     reports: tuple[TargetReport, ...] = ()
     iterations = 0
+    notes: tuple[str, ...] = ()
     if shape.method == "force-density":
         fd = force_density_shape(model0, shape, model0.combined_loads(factors))
         L0 = fd.member_length0
         model, result, X = _settle(spec, model0, model0.to_site(fd.coordinates), L0, factors, settings,
                                    linear_solver)
     elif shape.method == "target":
-        model, result, X, L0, reports, iterations = _target_shape(spec, model0, factors, settings,
-                                                                  linear_solver, progress)
+        with _searching():
+            model, result, X, L0, reports, iterations, notes = _target_shape(spec, model0, factors, settings,
+                                                                             linear_solver, progress)
     else:
         raise CaseError("shape.method", f'unknown form-finding method "{shape.method}" (known: target, force-density)')
     shaped = shaped_case(spec, model0, X, L0, result.state.rotations)
@@ -894,4 +1086,4 @@ def find_shape(spec: CaseSpec, linear_solver: str | None = None,
     cutting = cutting_table(table_model, table_result, table_model.combined_loads(factors),
                             shape.fabrication_temperature)
     return ShapeResult(shaped, final, table_result, np.asarray(L0, dtype=float), reports, iterations,
-                       movement, cutting)
+                       movement, cutting, notes)
