@@ -175,6 +175,7 @@ SECTION_KEYS = ("material", "area", "weight", "breaking_load", "diameter", "Iy",
 MEMBER_KEYS = ("id", "type", "nodes", "section", "length0", "pretension", "tension_only",
                "divide", "up", "interior")
 NODE_TABLE_KEYS = ("ids", "x", "y", "z")
+_PLAIN_MEMBER_KEYS = frozenset(("id", "type", "nodes", "section", "length0", "pretension", "tension_only"))
 MEMBER_TABLE_KEYS = ("type", "section", "tension_only", "length0", "pretension", "ids", "i", "j")
 LOAD_KEYS = ("case", "self_weight", "factor", "node", "force", "moment", "displacement",
              "rotation", "members", "per_length", "temperature", "path", "start", "end")
@@ -634,7 +635,9 @@ class _Reader:
     def members(self, long_form, compact, nodes, sections, materials) -> list[Member]:
         if not isinstance(long_form, list):
             raise CaseError("members", f"expected an array of tables ([[members]]), found {describe_value(long_form)}")
-        records = [self.member_entry(entry, f"members[{k}]", sections) for k, entry in enumerate(long_form)]
+        records = self.plain_members(long_form, sections)
+        if records is None:  # some entry is not plain, or is wrong: the full check names its key
+            records = [self.member_entry(entry, f"members[{k}]", sections) for k, entry in enumerate(long_form)]
         if isinstance(compact, Mapping):
             compact = [compact]
         if not isinstance(compact, list):
@@ -703,9 +706,13 @@ class _Reader:
         tiny = ZERO_LENGTH_FRACTION * max(extent, 1.0)
         self.rotation_nodes: set[str] = set()
 
-        members = []
-        for rec in records:
-            members.append(self.finish_member(rec, coords, tiny, sections, materials))
+        # end-to-end lengths of all long-form members at once (the zero-length check)
+        index = self.index
+        ends = np.array([(index[rec["nodes"][0]], index[rec["nodes"][1]]) for rec in records],
+                        dtype=np.int64).reshape(-1, 2)
+        lengths = np.linalg.norm(coords[ends[:, 1]] - coords[ends[:, 0]], axis=1).tolist()
+        members = [self.finish_member(rec, coords, tiny, sections, materials, length)
+                   for rec, length in zip(records, lengths)]
         for group in groups:
             members.extend(self.finish_group(group, coords, tiny, sections, materials))
         return members
@@ -744,6 +751,55 @@ class _Reader:
                         f"freedom; cablefe accepts at most {MAX_ELEMENTS:,} elements and {MAX_DOFS:,} "
                         "degrees of freedom, since each needs about 6 kB of memory while solving (more "
                         "than one machine holds beyond that); check divide and the tables")
+
+    def plain_members(self, long_form, sections) -> list[dict] | None:
+        """Records of ``[[members]]`` entries when every one is plain, else None.
+
+        Plain: only the keys id, type, nodes, section, tension_only (bars),
+        and length0 or pretension (not beams) as bare numbers, all valid.
+        A long-form net has 10^4-10^5 such entries, and the full check
+        (:meth:`member_entry`) spends most of its time building key paths
+        for errors that do not happen; here the columns are checked first
+        and any doubt sends the whole list down the full check, which
+        raises the error naming its key.
+        """
+        types = set(MEMBER_TYPES)
+        length_factor = self.q.bare_factor("length")
+        force_factor = self.q.bare_factor("force")
+        records = []
+        append = records.append
+        for k, e in enumerate(long_form):
+            if type(e) is not dict or not e.keys() <= _PLAIN_MEMBER_KEYS:
+                return None
+            mid, mtype, ends, section = e.get("id"), e.get("type"), e.get("nodes"), e.get("section")
+            if (type(mid) is not str or type(mtype) is not str or mtype not in types or type(ends) is not list
+                    or len(ends) != 2 or type(section) is not str or section not in sections):
+                return None
+            a, b = ends
+            if type(a) is not str or type(b) is not str or not (mid.strip() and a.strip() and b.strip()
+                                                                 and section.strip()):
+                return None
+            tension_only = e.get("tension_only", False)
+            if type(tension_only) is not bool or ("tension_only" in e and mtype != "bar"):
+                return None
+            length0 = e.get("length0")
+            pretension = e.get("pretension")
+            if length0 is not None:
+                if pretension is not None or mtype == "beam" or type(length0) not in (int, float):
+                    return None
+                length0 = float(length0 * length_factor)
+                if not (math.isfinite(length0) and length0 > 0.0):
+                    return None
+            if pretension is not None:
+                if mtype == "beam" or type(pretension) not in (int, float):
+                    return None
+                pretension = float(pretension * force_factor)
+                if not math.isfinite(pretension):
+                    return None
+            append({"key": f"members[{k}]", "id": mid, "type": mtype, "nodes": (a, b), "section": section,
+                    "tension_only": tension_only, "length0": length0, "pretension": pretension,
+                    "divide": 1, "up": None, "interior": None})
+        return records
 
     def member_entry(self, entry, key, sections) -> dict:
         entry = _table(entry, key)
@@ -814,22 +870,23 @@ class _Reader:
                 group[name] = None
         return group
 
-    def finish_member(self, rec, coords, tiny, sections, materials) -> Member:
+    def finish_member(self, rec, coords, tiny, sections, materials, length) -> Member:
+        """The member of record ``rec``; ``length`` (m) between its end nodes."""
         key = rec["key"]
         a, b = rec["nodes"]
-        axis = coords[self.index[b]] - coords[self.index[a]]
         if rec["interior"] is not None:  # given interior points: every element needs a length too
             chain = [coords[self.index[a]], *map(np.asarray, rec["interior"]), coords[self.index[b]]]
             pieces = np.linalg.norm(np.diff(np.asarray(chain), axis=0), axis=1)
             if pieces.min() <= tiny:
                 raise CaseError(f"{key}.interior", f"two consecutive nodes of member \"{rec['id']}\" coincide "
                                 "(zero-length element)")
-        if np.linalg.norm(axis) <= tiny:
+        if length <= tiny:
             raise CaseError(f"{key}.nodes", f'zero length: nodes "{a}" and "{b}" coincide')
         section = sections[rec["section"]]
         self.check_strength(rec["type"], rec["tension_only"], rec["pretension"], section, materials,
                             key, lambda k: f"{key}.pretension")
         if rec["up"] is not None:
+            axis = coords[self.index[b]] - coords[self.index[a]]
             up = np.asarray(rec["up"])
             if np.linalg.norm(np.cross(up, axis)) <= 1e-9 * np.linalg.norm(up) * np.linalg.norm(axis):
                 raise CaseError(f"{key}.up", f"up = {list(rec['up'])} is parallel to the member axis "

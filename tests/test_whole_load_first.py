@@ -1,0 +1,52 @@
+"""The whole load in one increment, and the bulk reading of plain members,
+give what the step-by-step paths give."""
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+from numpy.testing import assert_allclose
+
+import cablefe
+from cablefe.io import case as case_io
+from cablefe.solvers import newton, static
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def _solve(path, whole: bool, monkeypatch):
+    original = newton.follow_load_path
+
+    def patched(problem, settings=newton.NewtonSettings(), progress=None):
+        return original(problem, dataclasses.replace(settings, whole_load_first=whole), progress)
+
+    monkeypatch.setattr(static, "follow_load_path", patched)
+    return cablefe.solve(cablefe.load_model(path))
+
+
+def test_a_stiffening_net_takes_the_whole_load_at_once_and_lands_on_the_same_state(monkeypatch):
+    # the equilibrium of a stable (positive definite) path is unique, so the
+    # one-increment answer must be the incremental one; both meet the
+    # residual test ||r|| <= 1e-8 ||f||, and positions of the 12 m net move
+    # by the residual over the stiffness: far below 1e-6 m
+    path = ROOT / "cases" / "saddle_net.toml"
+    steps = _solve(path, False, monkeypatch)
+    whole = _solve(path, True, monkeypatch)
+    for name in ("snow", "uplift"):
+        assert whole[name].outcome.increments == (1.0,)
+        assert len(steps[name].outcome.increments) > 1
+        assert whole[name].outcome.iterations < steps[name].outcome.iterations
+        assert whole[name].outcome.negative_pivots == (0,)
+        assert_allclose(whole[name].state.positions, steps[name].state.positions, rtol=0, atol=1e-6)
+
+
+def test_plain_members_read_in_bulk_as_the_full_check_reads_them(monkeypatch):
+    for name in ("saddle_net.toml", "hanger_deck.toml", "generated-net.toml"):
+        path = ROOT / "cases" / name
+        bulk = case_io.read_case(path)
+        monkeypatch.setattr(case_io._Reader, "plain_members", lambda *a: None)
+        full = case_io.read_case(path)
+        monkeypatch.undo()
+        assert bulk.members == full.members
+        assert bulk == full
