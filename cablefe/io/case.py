@@ -1,6 +1,6 @@
 """Read and validate a case file (TOML) into a :class:`~cablefe.spec.CaseSpec`.
 
-The case file is described in the project's interface page; this module
+The case file is described in docs/case-format.md; this module
 implements it exactly and adds the extensions listed below.  Every user
 mistake raises :class:`~cablefe.errors.CaseError` with the key path of the
 offending value and a message that says what was found and what was
@@ -12,7 +12,7 @@ give the line and column.
 Values are converted to SI by :mod:`cablefe.io.units` (bare numbers in the
 file's ``[units]``, strings with their own unit).
 
-Extensions to the interface page
+Extensions to the base format
 --------------------------------
 ``[node_table]`` and ``[[member_table]]``
     Compact form for big models, alongside ``[nodes]`` and ``[[members]]``::
