@@ -561,15 +561,6 @@ def force_density_shape(model: Model, shape_spec: ShapeSpec, permanent_loads: Lo
 # target method
 # ---------------------------------------------------------------------------
 
-def _horizontal_unit(d):
-    l = np.hypot(d[:, 0], d[:, 1])
-    safe = l > 0.0
-    e = np.zeros_like(d)
-    e[:, 0] = np.where(safe, d[:, 0] / np.where(safe, l, 1.0), 1.0)
-    e[:, 1] = np.where(safe, d[:, 1] / np.where(safe, l, 1.0), 0.0)
-    return e
-
-
 def length_sensitivity(model: Model, state: State, loads: LoadVectors, responses=None) -> dict:
     """Derivative of the element internal forces with respect to their unstressed lengths.
 
@@ -631,19 +622,13 @@ def length_sensitivity(model: Model, state: State, loads: LoadVectors, responses
         if live.any():
             k = np.flatnonzero(live)
             F = catenary.catenary_flexibility(H[k], V[k], L0e[k], w[k], EA[k])
-            F_lH, F_lV, F_hV = F[:, 0, 0], F[:, 0, 1], F[:, 1, 1]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                det = F_lH * F_hV - F_lV * F_lV
-                inf = np.isinf(F_lH)
-                K_ll = np.where(inf, 0.0, F_hV / det)
-                K_lh = np.where(inf, 0.0, -F_lV / det)
-                K_hh = np.where(inf, 1.0 / F_hV, F_lH / det)
+            K_ll, K_lh, K_hh = catenary.in_plane_stiffness(F[:, 0, 0], F[:, 0, 1], F[:, 1, 1])
             s = 1.0 / EA[k] + 1.0 / Ta[k]
             dl, dh = H[k] * s, Va[k] * s
             dH[k] = -(K_ll * dl + K_lh * dh)
             dV[k] = -(K_lh * dl + K_hh * dh)
         d = state.positions[t.nodes[:, 1]] - state.positions[t.nodes[:, 0]]
-        eh = _horizontal_unit(d)
+        eh = catenary.horizontal_unit(d)
         ez = np.array([0.0, 0.0, 1.0])
         dfj = dH[:, None] * eh + dV[:, None] * ez
         dfi = -dH[:, None] * eh + np.where(live, w - dV, 0.0)[:, None] * ez

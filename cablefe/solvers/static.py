@@ -125,6 +125,28 @@ class StaticProblem:
             self._roundoff = 64.0 * np.finfo(float).eps * k * extent
         return self._roundoff
 
+    def _checked_evaluation(self, state: State, loads, factor: float, want_tangent: bool, lam: float):
+        """The assembled evaluation, or None (with ``failure_reason`` set) when an
+        element cannot be evaluated or a catenary's inner solve did not converge.
+
+        ``factor`` multiplies ``loads`` in the assembly; ``lam`` is the load
+        factor named in the message.
+        """
+        try:
+            with np.errstate(all="ignore"):
+                ev = self.assembler.evaluate(state, loads, factor, want_tangent)
+        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+            self.failure_reason = f"an element could not be evaluated at load factor {lam:.4f}: {exc}"
+            return None
+        cab = ev.responses.get("cable")
+        if cab is not None and not np.all(cab.converged):
+            bad = np.flatnonzero(~cab.converged)
+            mem = self.model.members[int(self.model.families["cable"].member[bad[0]])]
+            self.failure_reason = (f"the catenary equations of {bad.size} cable element(s) (first in member "
+                                   f'"{mem.id}") did not converge at load factor {lam:.4f}')
+            return None
+        return ev
+
     def evaluate(self, state: State, lam: float, want_tangent: bool = True):
         """Residual, force scale and tangent; a failed element makes the residual NaN.
 
@@ -134,18 +156,8 @@ class StaticProblem:
         step (the line search shortens it, the increment is cut), never as
         a converged one.  ``failure_reason`` keeps the cause.
         """
-        try:
-            with np.errstate(all="ignore"):
-                ev = self.assembler.evaluate(state, self.loads, lam, want_tangent)
-        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
-            self.failure_reason = f"an element could not be evaluated at load factor {lam:.4f}: {exc}"
-            return np.full(len(self.free), np.nan), 1.0, None
-        cab = ev.responses.get("cable")
-        if cab is not None and not np.all(cab.converged):
-            bad = np.flatnonzero(~cab.converged)
-            mem = self.model.members[int(self.model.families["cable"].member[bad[0]])]
-            self.failure_reason = (f"the catenary equations of {bad.size} cable element(s) (first in member "
-                                   f'"{mem.id}") did not converge at load factor {lam:.4f}')
+        ev = self._checked_evaluation(state, self.loads, lam, want_tangent, lam)
+        if ev is None:
             return np.full(len(self.free), np.nan), 1.0, None
         r = self.out_of_balance(ev, lam)[self.free]
         applied = lam * self.loads.nodal + (1.0 - lam) * self._r0

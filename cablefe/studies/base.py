@@ -110,18 +110,8 @@ class FromBaseProblem(StaticProblem):
         base factorization serves, the tangent is only built when needed."""
         build = want_tangent and self._base_factor is None
         self._at = None
-        try:
-            with np.errstate(all="ignore"):
-                ev = self.assembler.evaluate(state, self._loads_at(lam), 1.0, build)
-        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
-            self.failure_reason = f"an element could not be evaluated at load factor {lam:.4f}: {exc}"
-            return np.full(len(self.free), np.nan), 1.0, None
-        cab = ev.responses.get("cable")
-        if cab is not None and not np.all(cab.converged):
-            bad = np.flatnonzero(~cab.converged)
-            mem = self.model.members[int(self.model.families["cable"].member[bad[0]])]
-            self.failure_reason = (f"the catenary equations of {bad.size} cable element(s) (first in member "
-                                   f'"{mem.id}") did not converge at load factor {lam:.4f}')
+        ev = self._checked_evaluation(state, self._loads_at(lam), 1.0, build, lam)
+        if ev is None:
             return np.full(len(self.free), np.nan), 1.0, None
         self._at = (state, lam)
         r = self.out_of_balance(ev, lam)[self.free]
