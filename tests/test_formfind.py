@@ -75,7 +75,7 @@ def _chain(n, a, rise, P, q, kind="bar", EA_area=1.0e-3):
     return replace(spec, shape=ShapeSpec(method="force-density", permanent=("p",), force_density={"S*": q}))
 
 
-def test_chain_with_equal_loads_is_the_exact_parabola():
+def test_chain_with_equal_loads_is_the_exact_parabola(verify):
     n, a, rise, P, q = 9, 2.0, 3.0, 1.5e3, 4.0e3
     spec = _chain(n, a, rise, P, q)
     model = build_model(spec)
@@ -85,7 +85,9 @@ def test_chain_with_equal_loads_is_the_exact_parabola():
     # source: Schek 1974 (Comput. Methods Appl. Mech. Eng. 3): equal q and equal nodal loads P give
     # z_i = chord_i - (P / 2q) i (n + 1 - i) (second difference P/q), x evenly spaced
     chord = rise * i / (n + 1)
-    assert_allclose(X[:, 2], chord - P / (2 * q) * i * (n + 1 - i), rtol=0, atol=1e-12 * rise)
+    verify.check("force density: chain of 9 free nodes, equal q and loads, heights",
+                 "Schek 1974, Comput. Methods Appl. Mech. Eng. 3 (linear equilibrium of force densities)",
+                 X[:, 2], chord - P / (2 * q) * i * (n + 1 - i), atol=1e-12 * rise, unit="m")
     assert_allclose(X[:, 0], i * a, rtol=1e-13)
     assert_allclose(X[:, 1], 0.0, atol=1e-14)
 

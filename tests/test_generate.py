@@ -222,8 +222,8 @@ def test_generated_suspension_cable_converges_at_second_order_with_hanger_spacin
     # load hung at hanger points spaced s is the uniform load lumped at the
     # nodes; the cable between hangers differs from the smooth parabolic
     # curve by O(s^2) in length, so the form-found unstressed length of the
-    # main cable converges at order 2 as the spacing halves (shared/
-    # validation.md: the rate should be 2).  The hangers are made weightless:
+    # main cable converges at order 2 as the spacing halves
+    # (the lumped load is the midpoint rule of the distributed one).  The hangers are made weightless:
     # with their own weight, halving s would double their steel and change
     # the load, not refine the model.  Self-convergence: successive
     # differences, so the catenary-versus-parabola offset of the cable's own

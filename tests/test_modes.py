@@ -63,7 +63,7 @@ def solved_modes(text):
 # -- taut string and the shallow cable's swinging modes ------------------------------
 
 def test_taut_string_frequencies_are_bracketed_by_lumped_and_consistent_mass(verify):
-    # source: taut string f_n = (n / 2l) sqrt(T / m) (classical; shared/validation.md, Dynamics).
+    # source: taut string f_n = (n / 2l) sqrt(T / m) (classical; e.g. Blevins 1979, Formulas for Natural Frequency and Mode Shape, ch. 7; from memory).
     # Linear elements: the discrete n-th frequency is off by about (n pi / N)^2 / 24, too high
     # with consistent mass and too low with lumped mass (dispersion of the discrete string).
     N, T, l = 60, 1.0e4, 10.0
@@ -436,7 +436,7 @@ def test_resonant_acceleration_of_a_simply_supported_girder(density, verify):
     # source: steady-state resonance of one mode, a = F* / (2 xi M*) (Heinemeyer et al. 2009,
     # Design of Lightweight Footbridges for Human Induced Vibrations, EUR 23984 EN; from
     # memory); for sin(pi x / L) under p per length in the mode's sign, F* = 2 p L / pi and
-    # M* = m L / 2, so a = 2 p / (pi xi m) (closed form, shared/validation.md).  Load per
+    # M* = m L / 2, so a = 2 p / (pi xi m) (closed form, derived here).  Load per
     # length p = P n' psi b with P = 280 N, n' = 10.8 sqrt(xi n) / S below 1 P/m^2 and
     # 1.85 sqrt(n) / S from it, psi = 1 between 1.7 and 2.1 Hz (same source, from memory).
     L, b, xi = 30.0, 2.0, 0.01

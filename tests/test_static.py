@@ -13,8 +13,8 @@ from conftest import make_spec
 EA = 2.0e11 * 1.0e-3
 
 
-def test_prestressed_string_with_central_point_load():
-    # source: statics of a two-bar string (shared/validation.md, "Prestressed string"):
+def test_prestressed_string_with_central_point_load(verify):
+    # source: statics of a two-bar string (equilibrium of the loaded node; exact):
     # P = 2 N sin(theta), N = EA (L - L0)/L0, L = a / cos(theta).  Exact.
     a, L0, P = 5.0, 4.99, 20e3
     spec = make_spec(
@@ -32,7 +32,9 @@ def test_prestressed_string_with_central_point_load():
     u = brentq(balance, 0.0, 1.0, xtol=1e-15)
     L = np.hypot(a, u)
     assert_allclose(res.node_displacement("point", "C"), [0, 0, -u], atol=1e-10)
-    assert_allclose(res.tension("point", "L"), [EA * (L - L0) / L0] * 2, rtol=1e-9)
+    verify.check("prestressed two-bar string, central point load: bar tension",
+                 "statics of the loaded node, P = 2 N sin(theta), N = EA (L - L0)/L0 (exact; root by brentq)",
+                 res.tension("point", "L"), [EA * (L - L0) / L0] * 2, rtol=1e-9, unit="N")
     # reactions balance the load: the support pulls up by P/2 at each end
     r = res.reactions("point")
     assert_allclose(r["A"][2] + r["B"][2], P, rtol=1e-9)
@@ -77,7 +79,8 @@ def test_parabolic_cable_converges_at_second_order():
     # source: parabolic cable under w per horizontal length, H = w L^2 / (8 d),
     # support tension sqrt(H^2 + (wL/2)^2) (Irvine 1981, Cable Structures,
     # ch. 2; common practice).  A chain of bars with the load lumped at its
-    # nodes converges to it at order 2 (shared/validation.md).
+    # nodes converges to it at order 2 (the lumped load is the midpoint rule of
+    # the distributed one; common practice).
     w, span, sag = 2.0e3, 100.0, 8.0
     ns, errs = [4, 8, 16, 32], []
     for n in ns:
