@@ -23,7 +23,8 @@ def _fd_tangent(xi, xj, L0, EA, tension_only, h=1e-6):
 
 
 def test_axial_force_is_engineering_strain_of_unstressed_length():
-    # source: the case-file contract, N = EA (L - L0) / L0 (interface v1)
+    # source: definition of the axial force from the engineering strain of the
+    # unstressed length, N = EA (L - L0) / L0 (docs/case-format.md, member types)
     xi = np.array([[0.0, 0.0, 0.0]])
     xj = np.array([[3.0, 4.0, 0.0]])
     r = bar.response(xi, xj, np.array([4.9]), np.array([2.0e6]))

@@ -258,7 +258,7 @@ def test_single_element_forces(H, V, w):
 
 
 def test_weightless_element_is_the_straight_tie():
-    # source: the case-file contract (interface v1): N = EA (L - L0)/L0
+    # source: N = EA (L - L0)/L0 for a weightless tie (docs/case-format.md, member types)
     xi = np.array([[0.0, 0.0, 0.0], [1.0, 1.0, 1.0]])
     xj = np.array([[3.0, 4.0, 12.0], [4.0, 5.0, 13.0]])       # chord 13
     L0, EA = np.array([12.9, 13.5]), np.array([2.0e6, 2.0e6])

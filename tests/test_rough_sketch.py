@@ -39,7 +39,7 @@ def rough_sketch(case: Path, seed: int, offset: float = 1.0, tolerance: float | 
     model = build_model(spec)
     raw = copy.deepcopy(dict(spec.raw))
     scale = spec.units.length_scale
-    owner, _ = ff._adjust_owner(model, spec.shape)
+    owner, _ = ff.target._adjust_owner(model, spec.shape)
     L0 = ff.member_lengths(model)
     counts = np.bincount(owner[owner >= 0])
     rng = np.random.default_rng(seed)
@@ -85,10 +85,10 @@ def _length_bound(found, tol):
     of a step that large.
     """
     m = found.model
-    owner, labels = ff._adjust_owner(m, m.spec.shape)
-    tn, ta, _, _ = ff._target_list(m, m.spec.shape)
+    owner, labels = ff.target._adjust_owner(m, m.spec.shape)
+    tn, ta, _, _ = ff.target._target_list(m, m.spec.shape)
     start = {f: m.families[f].props["unstressed_length"].copy() for f in ("bar", "cable")}
-    J = ff._target_jacobian(m, found.equilibrium, m.combined_loads(ff.permanent_factors(m.spec.shape)),
+    J = ff.target._target_jacobian(m, found.equilibrium, m.combined_loads(ff.permanent_factors(m.spec.shape)),
                             owner, start, m.dof[tn, ta], len(labels), "auto")
     per_factor = np.abs(np.linalg.pinv(J)).sum(axis=1) * 2.0 * tol
     out = np.zeros(len(m.members))
