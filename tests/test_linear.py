@@ -425,3 +425,100 @@ def test_pardiso_detects_unsymmetric_input(pardiso):
     assert fact.backend == "pardiso-unsymmetric"
     # source: NumPy reference, numpy.linalg.solve (LAPACK dgesv)
     assert_allclose(fact.solve(b), np.linalg.solve(K.toarray(), b), rtol=1e-11, atol=1e-12)
+
+
+# -- C K^-1 F through the Schur complement ---------------------------------------
+
+def _grid_tangent(m, seed, unsymmetric=0.0):
+    """A 5-point stencil on an m x m grid plus random positive diagonal (SPD),
+    optionally with a small unsymmetric part."""
+    rng = np.random.default_rng(seed)
+    n = m * m
+    idx = np.arange(n).reshape(m, m)
+    rows = np.concatenate([idx[:, :-1].ravel(), idx[:-1, :].ravel()])
+    cols = np.concatenate([idx[:, 1:].ravel(), idx[1:, :].ravel()])
+    k = rng.uniform(0.5, 2.0, rows.size)
+    off = sp.coo_matrix((-k, (rows, cols)), shape=(n, n))
+    deg = np.bincount(rows, k, n) + np.bincount(cols, k, n) + rng.uniform(0.01, 0.1, n)
+    K = (off + off.T + sp.diags(deg)).tocsr()
+    if unsymmetric:
+        K = (K + unsymmetric * sp.coo_matrix((rng.uniform(-1, 1, rows.size), (rows, cols)), shape=(n, n))).tocsr()
+    return K
+
+
+@pytest.mark.parametrize("unsymmetric", [0.0, 0.05])
+def test_schur_product_matches_dense_solve(monkeypatch, unsymmetric):
+    from cablefe.solvers.linear import schur
+    import scipy.sparse.linalg as spla
+    monkeypatch.setattr(schur, "WORTH", 1e9)       # take the route whatever it costs
+    m = 24
+    K = _grid_tangent(m, 3, unsymmetric)
+    n = K.shape[0]
+    rng = np.random.default_rng(4)
+    line = np.arange(m) * m + m // 2               # a grid line across the middle
+    C = sp.csr_matrix((rng.uniform(-1, 1, 3 * m), (np.repeat(np.arange(m), 3),
+                                                    np.concatenate([line, line + 1, line - 1]).reshape(3, m).T.ravel())),
+                      shape=(m, n))
+    F = sp.csc_matrix((np.ones(m), (line, np.arange(m))), shape=(n, m))
+    order = np.argsort(spla.splu(K.tocsc(), permc_spec="MMD_AT_PLUS_A").perm_c)
+    got = schur.schur_product(K, order, C, F, factor_nnz=10**6)
+    assert got is not None
+    # source: C K^-1 F by LAPACK's dense LU solve (numpy.linalg.solve)
+    expected = C.toarray() @ np.linalg.solve(K.toarray(), F.toarray())
+    assert_allclose(got, expected, rtol=0, atol=1e-11 * np.abs(expected).max())
+
+
+def test_schur_product_declines_when_it_does_not_pay_or_fails_its_check(monkeypatch):
+    from cablefe.solvers.linear import schur
+    import scipy.sparse.linalg as spla
+    K = _grid_tangent(12, 5)
+    n = K.shape[0]
+    order = np.argsort(spla.splu(K.tocsc(), permc_spec="MMD_AT_PLUS_A").perm_c)
+    C = sp.csr_matrix(np.eye(n)[:3])
+    F = sp.csc_matrix(np.eye(n)[:, :3])
+    # three columns cost little to solve: the dense route is not worth it
+    assert schur.schur_product(K, order, C, F, factor_nnz=n) is None
+    # every unknown touched: nothing to eliminate first
+    assert schur.schur_product(K, order, sp.csr_matrix(np.eye(n)), F, factor_nnz=10**9) is None
+    monkeypatch.setattr(schur, "WORTH", 1e9)
+    assert schur.schur_product(K, order, C, F, factor_nnz=n) is not None
+    monkeypatch.setattr(schur, "CHECK_BACKWARD", -1.0)   # no answer passes the check
+    assert schur.schur_product(K, order, C, F, factor_nnz=n) is None
+
+
+@pytest.mark.parametrize("backend", BACKENDS)
+@pytest.mark.parametrize("small_system", [5000, 0])
+def test_solve_blocks_match_dense_solve(monkeypatch, backend, small_system):
+    from cablefe.solvers.linear import solver as solver_module
+    monkeypatch.setattr(solver_module, "SMALL_SYSTEM", small_system)
+    K = _grid_tangent(15, 6)
+    n = K.shape[0]
+    B = np.random.default_rng(8).uniform(-1, 1, (n, 37))
+    fact = make_linear_solver(backend).factorize(K)
+    X = np.zeros_like(B)
+    firsts = []
+    for a, block in fact.solve_blocks(sp.csc_matrix(B)):
+        X[:, a:a + block.shape[1]] = block
+        firsts.append(a)
+    assert firsts == sorted(set(firsts)) and firsts[0] == 0
+    # source: LAPACK's dense LU solve (numpy.linalg.solve)
+    assert_allclose(X, np.linalg.solve(K.toarray(), B), rtol=0, atol=1e-10 * np.abs(X).max())
+
+
+def test_solve_blocks_resolve_a_block_that_fails_its_check(monkeypatch):
+    K = _grid_tangent(10, 9)
+    B = np.random.default_rng(10).uniform(-1, 1, (K.shape[0], 5))
+    fact = make_linear_solver("superlu").factorize(K)
+    calls = []
+    original = type(fact).solve
+
+    def counted(self, b):
+        calls.append(1)
+        return original(self, b)
+    monkeypatch.setattr(type(fact), "solve", counted)
+    # a raw solve that is off by 1e-6: the random-combination check must see it
+    raw = fact._raw_solve
+    monkeypatch.setattr(fact, "_raw_solve", lambda R: raw(R) * (1.0 + 1e-6))
+    (a, X), = list(fact.solve_blocks(B))
+    assert len(calls) == 5      # each column again, with the full check and refinement
+    assert_allclose(X, np.linalg.solve(K.toarray(), B), rtol=1e-9)

@@ -459,3 +459,32 @@ def test_an_unreachable_scheduler_is_one_line_exit_2(tmp_path, capsys, monkeypat
     code = main(["study", str(case), "-o", str(tmp_path / "out"), "--scheduler", "tcp://127.0.0.1:9"])
     err = capsys.readouterr().err.strip().splitlines()
     assert code == 2 and len(err) == 1 and "no Dask scheduler" in err[0]
+
+
+def test_influence_lines_by_the_schur_complement_equal_those_by_solves(monkeypatch):
+    """The same C K^-1 F by two routes of the linear layer (block elimination
+    is exact in exact arithmetic: Golub & Van Loan 2013, Matrix Computations,
+    sec. 3.2, from memory): only round-off may separate them."""
+    from cablefe.solvers.linear import schur
+    from cablefe.studies import influence
+    text = deck_case(_study_block(name='"i"', kind='"influence"', path=LANE, watch='["D3", "H3", "MC3"]'))
+    results = _solved(text)
+    study = results.model.spec.studies[0]
+    session = session_for(make_context(results, study))
+    taken = []
+    original = schur.schur_product
+
+    def counted(*args):
+        out = original(*args)
+        taken.append(out is not None)
+        return out
+    monkeypatch.setattr(schur, "WORTH", 1e9)
+    monkeypatch.setattr("cablefe.solvers.linear.solver.schur_product", counted)
+    by_schur = influence_lines(session, session.lane, study.load)
+    monkeypatch.setattr(influence, "SCHUR", False)
+    by_solves = influence_lines(session, session.lane, study.load)
+    assert taken == [True]
+    scale = np.abs(by_solves.values).max(axis=1, keepdims=True)
+    assert_allclose(by_schur.values, by_solves.values, rtol=0, atol=1e-10 * scale.max())
+    for row, s in zip(np.abs(by_schur.values - by_solves.values), scale[:, 0]):
+        assert row.max() <= 1e-9 * s

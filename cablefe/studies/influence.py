@@ -32,14 +32,12 @@ import scipy.sparse as sp
 
 from ..results import element_end_tensions
 
-#: adjoint right-hand sides solved together (bounds the dense block in memory)
-CHUNK = 256
-#: SuperLU systems up to this many DOFs solve ``SMALL_BLOCK`` columns per call
-SMALL_SYSTEM = 5000
-SMALL_BLOCK = 16
 #: solve per lane point instead of per response when that is fewer (same
 #: numbers; a switch for tests)
 RECIPROCITY = True
+#: the Schur complement route of the linear layer when it pays (same
+#: numbers; a switch for tests)
+SCHUR = True
 
 
 @dataclass(frozen=True)
@@ -219,14 +217,21 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
 
     values = np.zeros((len(names), P))
     symmetric_tangent = not model.has_rotations
-    if nfree:
+    # few unknowns touched (a lane across a big net): one factorisation with
+    # them ordered last gives C K^-1 F from the Schur complement
+    product = None
+    if nfree and SCHUR and session.base_factor is not None:
+        product = session.base_factor.schur_product(C, F_free)
+    if product is not None:
+        values[:] = product
+    elif nfree:
         if RECIPROCITY and P < len(names) and session.base_factor is not None:
             # fewer lane points than responses: solve K X = F once per lane
             # point with the session's factorization of the base tangent,
             # then C X: the same numbers as the adjoint (C K^-1 F either
             # way; for a symmetric K this is Maxwell-Betti reciprocity), and
             # an unsymmetric K (beams) needs no factorization of K^T
-            for a, X in _solves(session.base_factor, F_free):
+            for a, X in session.base_factor.solve_blocks(F_free):
                 values[:, a:a + X.shape[1]] = (C @ X)
         else:
             # the adjoint needs K^T; the tangent of bars and cables is
@@ -234,26 +239,8 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
             fact = session.base_factor
             if not symmetric_tangent or fact is None:
                 fact = session.solver.factorize(session.base_tangent.T.tocsr())
-            for a, lam in _solves(fact, C.T.tocsc()):
+            for a, lam in fact.solve_blocks(C.T.tocsc()):
                 values[a:a + lam.shape[1]] = lam.T @ F_free
     values += direct
     return InfluenceLines(names, kind, owner, np.asarray(dirs), values, lane.s.copy(), np.asarray(base))
 
-
-def _solves(fact, B):
-    """``(first column, K^-1 B[:, block])`` over blocks of columns of ``B``.
-
-    SuperLU's solve of many right-hand sides at once was measured 3-4 times
-    slower than solving them one by one on large systems (28 812 DOFs, 64
-    columns: 2.6 s against 0.75 s; 16 columns per call 2.5 times slower),
-    so there its columns go one at a time; on small systems blocks of
-    ``SMALL_BLOCK`` were faster (1 816 DOFs, 102 columns: 9 ms against
-    20 ms one by one).  Other backends take blocks of ``CHUNK``.
-    """
-    step = CHUNK
-    if str(getattr(fact, "backend", "")).startswith(("superlu", "splu")):
-        step = SMALL_BLOCK if B.shape[0] <= SMALL_SYSTEM else 1
-    for a in range(0, B.shape[1], step):
-        block = B[:, a:a + step]
-        block = block.toarray() if hasattr(block, "toarray") else np.asarray(block)
-        yield a, fact.solve(block)

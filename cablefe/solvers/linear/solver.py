@@ -20,11 +20,20 @@ from .engines import _ENGINES, _SUPERLU_SYM
 from .errors import SingularMatrixError, _FactorFailed
 from .pardiso import _pardiso_library
 from .pattern import _Pattern, _System
+from .schur import schur_product
 
 logger = logging.getLogger(__name__)
 
 #: Names accepted by :func:`make_linear_solver`.
 KNOWN_BACKENDS = ("auto", "pardiso", "superlu", "splu-default")
+
+#: :meth:`Factorization.solve_blocks`: columns per solve call (PARDISO; it
+#: also bounds the dense block in memory), and for SuperLU the columns per
+#: call on systems of up to SMALL_SYSTEM equations (one at a time above)
+BLOCK_COLUMNS = 256
+SMALL_SYSTEM = 5000
+SMALL_BLOCK = 16
+_BLOCK_CHECK_SEED = 7321
 
 
 # --------------------------------------------------------------------------
@@ -144,6 +153,56 @@ class Factorization:
                                "(backend %s); K is ill-conditioned", eta.max(), self._tol,
                                self.backend)
         return X.reshape(b.shape)
+
+    def solve_blocks(self, B):
+        """Solve ``K X = B`` for many columns: yields ``(first column, X block)``.
+
+        Blocks as the backend solves fastest: SuperLU ``SMALL_BLOCK``
+        columns per call on systems of up to ``SMALL_SYSTEM`` equations and
+        one at a time above (its multi-column solve was measured 3-4 times
+        slower there: 28 812 DOFs, 64 columns, 2.6 s against 0.75 s; at
+        1 816 DOFs 16 columns per call took 9 ms against 20 ms one by one
+        for 102 columns), other backends ``CHUNK``.  Each block is checked
+        on one random combination ``w`` of its columns: the scaled backward
+        error of ``K (X w) = B w`` (one product with ``K`` instead of one per
+        column; a column solved badly shows in it unless ``w`` happens to
+        cancel it, which has probability zero).  A block that fails is
+        solved again column by column by :meth:`solve`, with its full check.
+
+        Parameters
+        ----------
+        B : (n, m) array or sparse matrix (columns are densified a block at a time)
+        """
+        m = B.shape[1]
+        step = BLOCK_COLUMNS
+        if self.backend.startswith(("superlu", "splu")):
+            step = SMALL_BLOCK if self.n <= SMALL_SYSTEM else 1
+        rng = np.random.default_rng(_BLOCK_CHECK_SEED)
+        for a in range(0, m, step):
+            block = B[:, a:a + step]
+            block = np.asarray(block.toarray() if hasattr(block, "toarray") else block, dtype=np.float64)
+            if self.n == 0:
+                yield a, np.zeros_like(block)
+                continue
+            X = self._raw_solve(np.asfortranarray(block))
+            if self._check:
+                w = rng.uniform(-1.0, 1.0, block.shape[1])
+                eta, _ = self._system.backward_error((block @ w)[:, None], (X @ w)[:, None])
+                if not eta[0] <= self._tol:
+                    X = np.column_stack([self.solve(block[:, j]) for j in range(block.shape[1])])
+            yield a, X
+
+    def schur_product(self, C, F) -> np.ndarray | None:
+        """``C K^-1 F`` through the Schur complement on the unknowns ``C``
+        (rows, sparse) and ``F`` (columns) touch, or None when that route
+        does not pay or cannot be taken (see :mod:`.schur`): the caller
+        then solves with :meth:`solve`.  Needs the SuperLU ordering of the
+        pattern (any backend's factors are left untouched).
+        """
+        if self._system is None:
+            return None
+        return schur_product(self._system.K, self._system.pattern.superlu_q, C, F,
+                             self.stats.get("nnz_factor"))
 
     def _raw_solve(self, B: np.ndarray) -> np.ndarray:
         while True:
