@@ -56,7 +56,7 @@ def catenary_length_for_chord_force(l, h, chord_force, weight, EA, max_iter=200)
     component of the mean end force with half the weight taken off each
     end); it falls as the unstressed length grows.  Vectorized bisection on a
     bracket found by doubling, each trial solved exactly by
-    :func:`cablefe.elements.catenary.solve_end_forces`.
+    :func:`cablefe.elements.catenary.inverse.solve_end_forces`.
 
     Parameters
     ----------
