@@ -244,7 +244,7 @@ class Results:
                 if (g[3:] >= 0).all():
                     entry["reaction_moment"] = (res.reactions[g[3:]] / (F * L)).tolist()
             if res.state.rotations is not None:
-                from .elements.beam import logm_so3
+                from .elements.beam.rotations import logm_so3
                 turning = np.flatnonzero(m.dof[:, 3] >= 0)
                 R = res.state.rotations[turning]
                 if m.initial_rotations is not None:

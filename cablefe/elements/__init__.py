@@ -1,8 +1,9 @@
 """Element families.
 
-Every family is a module with batched kernels: the first axis of every array is
-the element.  All quantities are SI (N, m, Pa, N/m).  Conventions shared by all
-families, relied on by :mod:`cablefe.assembly`:
+Every family is a module (or a package split by responsibility) with
+batched kernels: the first axis of every array is the element.  All
+quantities are SI (N, m, Pa, N/m).  Conventions shared by all families,
+relied on by :mod:`cablefe.assembly`:
 
 * Element nodal DOFs are ordered ``[node i DOFs, node j DOFs]``; a node carries
   ``[ux, uy, uz]`` (bar, cable) or ``[ux, uy, uz, rx, ry, rz]`` (beam).
@@ -16,8 +17,9 @@ families, relied on by :mod:`cablefe.assembly`:
   increment is spatial: ``R_new = expm(skew(dtheta)) @ R_old``.
 * Tension is positive.  z is up; weight acts in -z.
 
-Each module registers its family (:func:`register`, a :class:`Family` with
-its ``evaluate``, ``mass`` and optional ``warm_start``) at its end; the
+Each family's module (a package's ``__init__``) registers its family
+(:func:`register`, a :class:`Family` with its ``evaluate``, ``mass`` and
+optional ``warm_start``) at its end; the
 assembler looks kernels up by family name (:func:`family`), so a new element
 touches only this folder (and the model's table builder).
 """

@@ -18,7 +18,7 @@ import numpy as np
 import orjson
 
 from ..assembly import cable_inputs
-from ..elements import catenary
+from ..elements.catenary.sampling import shape_points, tension_at
 from ..results import Results, beam_section_forces, element_end_tensions, result_header, stability_and_path
 from .atomic import atomic_path, write_text
 
@@ -267,7 +267,7 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
             p = t.props
             L0, w = cable_inputs(t, loads, lam)
             xi, xj = pos[t.nodes[:, 0]], pos[t.nodes[:, 1]]
-            curve = catenary.shape_points(xi, xj, L0, p["EA"], w, r.H, r.V, CURVE_POINTS)
+            curve = shape_points(xi, xj, L0, p["EA"], w, r.H, r.V, CURVE_POINTS)
             inner = curve[:, 1:-1]                                   # (n, c-2, 3)
             n, c = len(t), CURVE_POINTS
             s = np.linspace(0.0, 1.0, c)[1:-1]
@@ -285,7 +285,7 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
             # arc length s), T(s) = sqrt(H^2 + (V - W + w s)^2) (Irvine 1981,
             # Cable Structures, sec. 1.3); it is not linear along the cable
             mid = (np.arange(c - 1) + 0.5) / (c - 1)
-            tens = catenary.tension_at(L0[:, None] * mid[None, :], r.H, r.V, L0, w)
+            tens = tension_at(L0[:, None] * mid[None, :], r.H, r.V, L0, w)
             tension.append(tens.ravel() / F)
             member.append(np.repeat(t.member, c - 1))
             slack.append(np.repeat(eslack, c - 1))

@@ -187,7 +187,7 @@ def build_model(spec: CaseSpec) -> Model:
             "breaking_load": np.asarray(columns["breaking_load"], dtype=float),
         }
         if f == "beam":
-            from ..elements import beam
+            from ..elements.beam.frames import local_frames
             for name in ("E", "G", "A", "Iy", "Iz", "J"):
                 props[name] = np.asarray(columns[name], dtype=float)
             xi, xj = reference_coordinates[nodes[:, 0]], reference_coordinates[nodes[:, 1]]
@@ -197,7 +197,7 @@ def build_model(spec: CaseSpec) -> Model:
             if any(u is not None for u in ups):
                 up = np.array([u if u is not None else _default_up(a, b) for u, a, b in zip(ups, xi, xj)])
             try:
-                props["frame0"] = beam.local_frames(xi, xj, up) if len(nodes) else np.zeros((0, 3, 3))
+                props["frame0"] = local_frames(xi, xj, up) if len(nodes) else np.zeros((0, 3, 3))
             except ValueError as exc:
                 if up is None:  # the default up is never parallel: a geometry problem
                     raise CaseError("members", f"beam elements: {exc}") from None

@@ -37,7 +37,7 @@ def _beam_reference(spec: CaseSpec, index: Mapping[str, int], coordinates: np.nd
     rows = np.fromiter((index[n] for n in names), dtype=np.int64, count=len(names))
     reference[rows] = np.array([spec.beam_reference[n].position for n in names],
                                dtype=float).reshape(-1, 3) - origin
-    from ..elements.beam import expm_so3
+    from ..elements.beam.rotations import expm_so3
     theta = np.array([spec.beam_reference[n].rotation for n in names], dtype=float).reshape(-1, 3)
     rotations[rows] = expm_so3(theta)
     return reference, rotations
@@ -132,8 +132,8 @@ def _hanging_start(mem, xa, xb, weight, EA) -> np.ndarray | None:
 
 
 def _default_up(xi, xj):
-    """The default documented in :func:`cablefe.elements.beam.local_frames`."""
-    from ..elements.beam import VERTICAL_COSINE
+    """The default documented in :func:`cablefe.elements.beam.frames.local_frames`."""
+    from ..elements.beam.frames import VERTICAL_COSINE
     e = (xj - xi) / np.linalg.norm(xj - xi)
     return np.array([1.0, 0.0, 0.0]) if abs(e[2]) > VERTICAL_COSINE else np.array([0.0, 0.0, 1.0])
 

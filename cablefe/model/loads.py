@@ -46,8 +46,8 @@ class _LoadBuilder:
         length = np.linalg.norm(xj - xi, axis=1)
         p = np.broadcast_to(per_length, (len(elems), 3)).astype(float)
         if family == "beam":
-            from ..elements import beam
-            fe = beam.equivalent_nodal_loads(xi, xj, t.props["frame0"][elems], length, p, a, b)
+            from ..elements.beam.loads import equivalent_nodal_loads
+            fe = equivalent_nodal_loads(xi, xj, t.props["frame0"][elems], length, p, a, b)
             np.add.at(self.nodal, t.dofs[elems], fe)
             np.add.at(self.beam, elems, fe)
             return

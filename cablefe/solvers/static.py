@@ -40,7 +40,7 @@ log = logging.getLogger(__name__)
 
 
 def _expm_so3(theta: np.ndarray) -> np.ndarray:
-    from ..elements.beam import expm_so3
+    from ..elements.beam.rotations import expm_so3
     return expm_so3(theta)
 
 

@@ -66,7 +66,7 @@ from typing import Callable
 
 import numpy as np
 
-from ...elements import catenary
+from ...elements.catenary.profile import stretched_length
 from ...errors import CaseError
 from ...model import LoadVectors, Model, build_model
 from ...spec import CaseSpec
@@ -135,7 +135,7 @@ def cutting_table(model: Model, result: StaticResult, loads: LoadVectors,
         else:
             ends = r.end_tension
             L0e = p["unstressed_length"] * (1.0 + loads.strain[f])
-            arc = catenary.stretched_length(r.H, r.V, L0e, loads.weight[f], p["EA"])
+            arc = stretched_length(r.H, r.V, L0e, loads.weight[f], p["EA"])
         L0 += np.bincount(t.member, weights=p["unstressed_length"], minlength=nm)
         loaded += np.bincount(t.member, weights=arc, minlength=nm)
         members, first = np.unique(t.member, return_index=True)

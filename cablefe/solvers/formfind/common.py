@@ -223,7 +223,7 @@ def _beam_reference_table(spec: CaseSpec, model: Model, rotations: np.ndarray) -
     case's earlier ``[beam_reference]``); ``rotations`` are totals from that
     stress-free orientation, so they are written as they are.
     """
-    from ...elements.beam import logm_so3
+    from ...elements.beam.rotations import logm_so3
     turning = np.flatnonzero(model.dof[:, 3] >= 0)
     theta = logm_so3(rotations[turning])
     ref = model.to_site(model.reference_coordinates if model.reference_coordinates is not None

@@ -8,7 +8,7 @@ import numpy as np
 import scipy.sparse as sp
 import scipy.sparse.linalg as spla
 
-from ...elements import catenary
+from ...elements.catenary.inverse import solve_end_forces
 from ...errors import CaseError
 from ...model import LoadVectors, Model, match_members
 from ...spec import ShapeSpec
@@ -56,7 +56,7 @@ def catenary_length_for_chord_force(l, h, chord_force, weight, EA, max_iter=200)
     component of the mean end force with half the weight taken off each
     end); it falls as the unstressed length grows.  Vectorized bisection on a
     bracket found by doubling, each trial solved exactly by
-    :func:`cablefe.elements.catenary.solve_end_forces`.
+    :func:`cablefe.elements.catenary.inverse.solve_end_forces`.
 
     Parameters
     ----------
@@ -78,7 +78,7 @@ def catenary_length_for_chord_force(l, h, chord_force, weight, EA, max_iter=200)
         return straight, np.ones(len(c), dtype=bool)
 
     def excess(L0, guess=None):
-        H, V, conv = catenary.solve_end_forces(l, h, L0, w, EA, guess=guess)
+        H, V, conv = solve_end_forces(l, h, L0, w, EA, guess=guess)
         return (H * l + (V - 0.5 * w * L0) * h) / c - N, (H, V)
 
     # a straight bar of that tension is too short to sag under weight: it

@@ -9,7 +9,8 @@ from types import MappingProxyType
 import numpy as np
 
 from ...assembly import Assembler, State
-from ...elements import catenary
+from ...elements.catenary.kernel import horizontal_unit, in_plane_stiffness
+from ...elements.catenary.profile import catenary_flexibility
 from ...errors import CaseError, MechanismError
 from ...model import LoadVectors, Model, build_model, match_members
 from ...spec import ShapeSpec
@@ -84,14 +85,14 @@ def length_sensitivity(model: Model, state: State, loads: LoadVectors, responses
         dV = np.zeros(len(H))
         if live.any():
             k = np.flatnonzero(live)
-            F = catenary.catenary_flexibility(H[k], V[k], L0e[k], w[k], EA[k])
-            K_ll, K_lh, K_hh = catenary.in_plane_stiffness(F[:, 0, 0], F[:, 0, 1], F[:, 1, 1])
+            F = catenary_flexibility(H[k], V[k], L0e[k], w[k], EA[k])
+            K_ll, K_lh, K_hh = in_plane_stiffness(F[:, 0, 0], F[:, 0, 1], F[:, 1, 1])
             s = 1.0 / EA[k] + 1.0 / Ta[k]
             dl, dh = H[k] * s, Va[k] * s
             dH[k] = -(K_ll * dl + K_lh * dh)
             dV[k] = -(K_lh * dl + K_hh * dh)
         d = state.positions[t.nodes[:, 1]] - state.positions[t.nodes[:, 0]]
-        eh = catenary.horizontal_unit(d)
+        eh = horizontal_unit(d)
         ez = np.array([0.0, 0.0, 1.0])
         dfj = dH[:, None] * eh + dV[:, None] * ez
         dfi = -dH[:, None] * eh + np.where(live, w - dV, 0.0)[:, None] * ez
