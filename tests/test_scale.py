@@ -187,13 +187,15 @@ _FAST_TEXTS = sorted(units.FAST_UNITS) + [
 
 
 @pytest.mark.parametrize("text", [t for t in _FAST_TEXTS if t != "1"])
-def test_fast_units_match_pint(text):
+def test_fast_units_match_pint(text, verify):
     # source: pint (Grecco et al., pint unit definitions, default_en.txt) as the reference library
     fast = units._fast_unit_info(text)
     assert fast is not None
     q = units.registry().parse_expression(text)
     # pint multiplies prefix factors in floating point: a few roundings of 1.1e-16
-    assert_allclose(fast[0], q.to_base_units().magnitude, rtol=4 * np.finfo(float).eps, atol=0)
+    verify.check(f'unit "{text}" read without pint: factor to SI base units', "pint (Grecco et al., pint "
+                 "unit definitions, default_en.txt)", fast[0], q.to_base_units().magnitude,
+                 rtol=4 * np.finfo(float).eps, atol=0)
     assert fast[1] == units._dimension_key(q.dimensionality)
 
 
