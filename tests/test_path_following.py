@@ -267,6 +267,9 @@ def test_shallow_arch_snaps_through_against_the_shallow_arch_solution(verify):
                  "Cedolin 1991, Stability of Structures, ch. 2 (both from memory)",
                  p40, arch_load(a40), rtol=0, atol=1e-3 * p_max, unit="N/m")
     assert 1.7 < math.log2(d20 / d40) < 2.3
+    verify.check("shallow sinusoidal arch, 20 and 40 beam elements: order of the largest load error",
+                 "Fung & Kaplan 1952, NACA TN 2840 (from memory); O(h^2) of cubic beam elements",
+                 math.log2(d20 / d40), 2.0, atol=0.3)
     # the path goes over the limit point and comes back: λ falls after it
     assert np.max(p40) == p40[-1] and np.any(np.diff(p40) < 0)
     assert np.any(p40[:-1] > 0.95 * p_max) and a40.min() < -a_lim
@@ -276,6 +279,10 @@ def test_shallow_arch_snaps_through_against_the_shallow_arch_solution(verify):
     for a, n in zip(a40, neg40):
         if abs(abs(a) / a_lim - 1.0) > 0.05:
             assert (n > 0) == (abs(a) < a_lim), (a / a_lim, n)
+            verify.check("shallow sinusoidal arch, 40 elements: unstable (negative pivots) exactly on the "
+                         "descending branch |a| < a_lim, a_lim^2 = (e^2 - 4r^2)/3 (1 = unstable)",
+                         "Fung & Kaplan 1952, NACA TN 2840; Bažant & Cedolin 1991, Stability of Structures, "
+                         "ch. 2 (both from memory)", float(n > 0), float(abs(a) < a_lim))
 
 
 def test_arc_length_on_a_load_that_moves_nothing(tmp_path):
