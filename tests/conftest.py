@@ -63,12 +63,18 @@ class Verification:
         from numpy.testing import assert_allclose
         computed_a = np.asarray(computed, dtype=float)
         reference_a = np.asarray(reference, dtype=float)
-        scale = np.maximum(np.abs(reference_a), np.finfo(float).tiny)
-        worst = float(np.max(np.abs(computed_a - reference_a) / scale)) if reference_a.size else 0.0
+        # normwise: the largest difference over the largest reference value,
+        # so that reference entries of zero (or round-off) do not blow it up;
+        # None when the reference is all zero (then the absolute difference tells)
+        difference = float(np.max(np.abs(computed_a - reference_a))) if reference_a.size else 0.0
+        size = float(np.max(np.abs(reference_a))) if reference_a.size else 0.0
+        worst = difference / size if size > 0.0 else None
         key = (self.nodeid, problem)
         if key in _RECORD_INDEX:
             record = _VERIFICATION_RECORDS[_RECORD_INDEX[key]]
-            record["relative_difference"] = max(record["relative_difference"], worst)
+            known = [v for v in (record["relative_difference"], worst) if v is not None]
+            record["relative_difference"] = max(known) if known else None
+            record["absolute_difference"] = max(record["absolute_difference"], difference)
             if not record["problem"].endswith(_REPEATED):
                 record["problem"] += _REPEATED
         else:
@@ -76,7 +82,8 @@ class Verification:
             _VERIFICATION_RECORDS.append({
                 "test": self.nodeid, "problem": problem, "source": source, "unit": unit,
                 "reference": _summary(reference_a), "computed": _summary(computed_a),
-                "relative_difference": worst, "rtol": rtol, "atol": atol})
+                "relative_difference": worst, "absolute_difference": difference,
+                "rtol": rtol, "atol": atol})
         assert_allclose(computed_a, reference_a, rtol=rtol, atol=atol, err_msg=problem)
 
 
