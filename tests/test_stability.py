@@ -6,9 +6,11 @@ the Euler loads of a pinned column (Timoshenko & Gere 1961, Theory of
 Elastic Stability, ch. 2).
 """
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
+from numpy.testing import assert_allclose
 import scipy.sparse as sp
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -287,3 +289,72 @@ def test_column_stability_in_results_and_summary(tmp_path, capsys, ratio, verify
     # one path entry per converged step, with the tracked mid-height node
     assert [e["load_factor"] for e in res["path"]][-1] == 1.0
     assert all("C.4" in e["displacements"] for e in res["path"])
+
+
+# -- the count at a converged state, read from the last iteration ---------------
+
+def _spring_held_strut(P, ky, kz):
+    """Two collinear bars A-M-B (each L = 2 m) compressed by P at B, the middle
+    node held sideways by a y spring and a z spring (bars to fixed points)."""
+    L, Ls, EA = 2.0, 1.0, 2.0e9
+    steel = Material("steel", E=2.0e11, G=8.0e10, unit_weight=0.0)
+    sections = {"strut": Section("strut", "steel", area=EA / 2.0e11),
+                "sy": Section("sy", "steel", area=ky * Ls / 2.0e11),
+                "sz": Section("sz", "steel", area=kz * Ls / 2.0e11)}
+    spec = make_spec(
+        {"A": (0, 0, 0), "M": (L, 0, 0), "B": (2 * L, 0, 0), "Y": (L, Ls, 0), "Z": (L, 0, Ls)},
+        [Member("AM", "bar", ("A", "M"), "strut"), Member("MB", "bar", ("M", "B"), "strut"),
+         Member("MY", "bar", ("M", "Y"), "sy"), Member("MZ", "bar", ("M", "Z"), "sz")],
+        {"A": (True,) * 3 + (False,) * 3, "B": (False, True, True) + (False,) * 3,
+         "Y": (True,) * 3 + (False,) * 3, "Z": (True,) * 3 + (False,) * 3},
+        loads=[NodalLoad("P", "B", (-P, 0.0, 0.0))], sections=sections, materials={"steel": steel},
+        analysis=AnalysisSettings(increments=1, tolerance=1e-10, max_iterations=30))
+    return cablefe.solve(cablefe.build_model(spec)).items[0]
+
+
+@pytest.mark.parametrize("P, unstable", [(0.8e5, 0), (1.2e5, 1), (2.5e5, 2)])
+def test_spring_held_strut_unstable_beyond_its_critical_loads(P, unstable, verify):
+    # source: the rigid two-link strut with a lateral spring k at its hinge
+    # buckles at P_cr = k L / 2 (L the length of one link): the geometric
+    # stiffness of the two compressed links, 2P/L, cancels the spring
+    # (Bazant & Cedolin 1991, Stability of Structures, sec. 1.1, from
+    # memory; here y: k = 1e5 N/m gives 1.0e5 N, z: k = 2e5 N/m gives 2.0e5 N,
+    # and the axial stiffness EA/L = 1e9 N/m makes the links rigid to 1e-4)
+    res = _spring_held_strut(P, 1.0e5, 2.0e5)
+    assert res.converged
+    verify.check("two collinear bars compressed by P, the middle node on lateral springs ky, kz: "
+                 "negative pivots = critical loads k L/2 below P",
+                 "Bazant & Cedolin 1991, Stability of Structures, sec. 1.1 (from memory)",
+                 res.outcome.negative_pivots[-1], unstable)
+
+
+def test_converged_count_from_the_last_iteration_equals_a_fresh_count(monkeypatch):
+    # the count read from the last iteration's factorisation (when its
+    # residual was small) must be the one a fresh factorisation of the
+    # converged tangent gives, and must save that factorisation
+    from cablefe.solvers import newton, static
+    path = Path(__file__).resolve().parent.parent / "cases" / "saddle_net.toml"
+    counts = {}
+
+    def run(reuse):
+        monkeypatch.setattr(newton, "PIVOT_REUSE_RATIO", 1e-3 if reuse else -1.0)
+        made = []
+        original = static.StaticProblem._factorize
+
+        def counted(self, K):
+            before = self._factorized
+            fact = original(self, K)
+            made.append(self._factorized is not before)
+            return fact
+        monkeypatch.setattr(static.StaticProblem, "_factorize", counted)
+        results = cablefe.solve(cablefe.load_model(path))
+        monkeypatch.setattr(static.StaticProblem, "_factorize", original)
+        counts[reuse] = sum(made)
+        return {r.name: r.outcome for r in results.items}
+
+    fresh, reused = run(False), run(True)
+    for name, outcome in fresh.items():
+        assert outcome.negative_pivots == reused[name].negative_pivots
+        assert_allclose(reused[name].state.positions, outcome.state.positions, rtol=0, atol=0)
+    # one fewer factorisation per converged increment that could use it
+    assert counts[True] < counts[False]

@@ -10,7 +10,7 @@ from .build import build_model
 from .tables import match_members
 from .geometry import local_origin
 # load-building internals, used by the moving-load studies
-from .loads import _add_patch, _element_lengths, _LoadBuilder, _segment_elements  # noqa: F401
+from .loads import EdgeIndex, PathChain, _LoadBuilder, add_path_load, path_chain  # noqa: F401
 from .report import model_warnings, report_deck_nodes
 from .tables import FAMILIES, ElementTable, LoadVectors, MemberInfo, Model
 

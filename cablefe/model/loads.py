@@ -4,6 +4,8 @@ span loads and prescribed support movements of every load case.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from ..errors import CaseError
@@ -82,27 +84,131 @@ def _member_elements(model: Model, indices):
     return {f: np.asarray(v, dtype=np.int64) for f, v in groups.items()}
 
 
-def _segment_elements(model: Model, a: str, b: str):
-    """Elements from node a to node b in order: list of (family, element, reversed)."""
-    ia, ib = model.node_index[a], model.node_index[b]
-    for f, t in model.families.items():
-        hit = np.flatnonzero((t.nodes[:, 0] == ia) & (t.nodes[:, 1] == ib))
-        if hit.size:
-            return [(f, int(hit[0]), False)]
-        hit = np.flatnonzero((t.nodes[:, 0] == ib) & (t.nodes[:, 1] == ia))
-        if hit.size:
-            return [(f, int(hit[0]), True)]
-    for mi in model.members:
-        if mi.node_ids[0] == a and mi.node_ids[-1] == b:
-            return [(mi.family, e, False) for e in range(mi.first, mi.first + mi.count)]
-        if mi.node_ids[0] == b and mi.node_ids[-1] == a:
-            return [(mi.family, e, True) for e in reversed(range(mi.first, mi.first + mi.count))]
-    return None
+class EdgeIndex:
+    """The element or member joining two nodes, found by hash or binary search.
+
+    Built once per model (``O(elements log elements)``), so a path of ``m``
+    nodes is resolved in ``O(m log elements)`` instead of a scan over every
+    element per segment.
+    """
+
+    def __init__(self, model: Model):
+        self.model = model
+        nn = max(len(model.node_ids), 1)
+        self._nn = nn
+        self._tables = []
+        for f, t in model.families.items():
+            if not len(t):
+                continue
+            key = t.nodes[:, 0].astype(np.int64) * nn + t.nodes[:, 1]
+            unique, first = np.unique(key, return_index=True)   # the first element of each node pair
+            self._tables.append((f, unique, first))
+        self._members: dict[tuple[str, str], tuple[int, bool]] = {}
+        for k, mi in enumerate(model.members):
+            self._members.setdefault((mi.node_ids[0], mi.node_ids[-1]), (k, False))
+            self._members.setdefault((mi.node_ids[-1], mi.node_ids[0]), (k, True))
+
+    def _element(self, unique, first, key: int):
+        at = int(np.searchsorted(unique, key))
+        return int(first[at]) if at < len(unique) and unique[at] == key else None
+
+    def segment(self, a: str, b: str):
+        """Elements from node ``a`` to node ``b`` in order: a list of
+        ``(family, element, reversed)``, or None when nothing joins them.
+
+        An element joining the two (the first family, then the lowest
+        element, that has them as ends in this order, else the other way),
+        otherwise the elements of the first member declared between them.
+        """
+        ia, ib = self.model.node_index[a], self.model.node_index[b]
+        for f, unique, first in self._tables:
+            e = self._element(unique, first, ia * self._nn + ib)
+            if e is not None:
+                return [(f, e, False)]
+            e = self._element(unique, first, ib * self._nn + ia)
+            if e is not None:
+                return [(f, e, True)]
+        hit = self._members.get((a, b))
+        if hit is None:
+            return None
+        k, rev = hit
+        mi = self.model.members[k]
+        order = range(mi.first, mi.first + mi.count)
+        return [(mi.family, e, rev) for e in (reversed(order) if rev else order)]
+
+
+@dataclass(frozen=True)
+class PathChain:
+    """The elements along a path of nodes, in order, with their undeformed lengths.
+
+    family : (k,) family name of each element
+    element : (k,) element index in its family's table
+    reverse : (k,) True when the element runs against the path
+    length : (k,) undeformed chord of each element, m (beams: stress-free)
+    nodes : (k + 1,) node indices of the points along the chain
+    """
+
+    family: tuple
+    element: np.ndarray
+    reverse: np.ndarray
+    length: np.ndarray
+    nodes: np.ndarray
+
+    @property
+    def starts(self) -> np.ndarray:
+        """(k,) distance of each element's first point along the path, m."""
+        return np.concatenate([[0.0], np.cumsum(self.length)[:-1]]) if len(self.length) else np.zeros(0)
+
+
+def path_chain(model: Model, path, key: str, edges: EdgeIndex | None = None) -> PathChain:
+    """The :class:`PathChain` of the node ids ``path``; CaseError at ``key`` when
+    a node is unknown or two consecutive nodes are not joined."""
+    edges = edges or EdgeIndex(model)
+    fams, elems, revs = [], [], []
+    nodes = [_node(model, path[0], key)]
+    for a, b in zip(path[:-1], path[1:]):
+        _node(model, b, key)
+        chain = edges.segment(a, b)
+        if chain is None:
+            raise CaseError(key, f'nodes "{a}" and "{b}" are not joined by a member')
+        for f, e, rev in chain:
+            fams.append(f)
+            elems.append(e)
+            revs.append(rev)
+            n0, n1 = model.families[f].nodes[e]
+            nodes.append(int(n0 if rev else n1))
+    elems = np.asarray(elems, dtype=np.int64)
+    fam = np.asarray(fams, dtype=object)
+    length = np.zeros(len(elems))
+    for f in dict.fromkeys(fams):
+        mine = fam == f
+        length[mine] = _element_lengths(model, f, elems[mine])
+    return PathChain(tuple(fams), elems, np.asarray(revs, dtype=bool), length, np.asarray(nodes, dtype=np.int64))
+
+
+def add_path_load(lb: "_LoadBuilder", chain: PathChain, per_length, start: float, end: float | None) -> None:
+    """A uniform load per length (N/m) on ``[start, end]`` m along ``chain``
+    (``end`` None: to its end), as element loads on the parts covered."""
+    p = np.asarray(per_length, dtype=float)
+    s0 = chain.starts
+    lo = np.maximum(start, s0)
+    hi = np.minimum(np.inf if end is None else end, s0 + chain.length)
+    hit = hi > lo
+    u0, u1 = lo - s0, hi - s0
+    # on a reversed element distances are measured from its node j
+    rev = chain.reverse
+    u0, u1 = np.where(rev, chain.length - u1, u0), np.where(rev, chain.length - u0, u1)
+    fam = np.asarray(chain.family, dtype=object)
+    for f in dict.fromkeys(chain.family):
+        mine = np.flatnonzero(hit & (fam == f))
+        if mine.size:
+            lb.add_element_load(f, chain.element[mine], p, u0[mine], u1[mine])
 
 
 def _build_loads(spec: CaseSpec, model: Model) -> dict[str, LoadVectors]:
     builders: dict[str, _LoadBuilder] = {}
     ids = PatternIndex([m.id for m in model.members])   # indexed once for every load
+    edges = None    # the node pairs of elements and members, indexed at the first patch load
     for k, load in enumerate(spec.loads):
         key = load.key or f"loads[{k}]"
         lb = builders.setdefault(load.case, _LoadBuilder(model))
@@ -140,7 +246,8 @@ def _build_loads(spec: CaseSpec, model: Model) -> dict[str, LoadVectors]:
                 lb.add_element_load(f, elems, np.asarray(load.per_length, dtype=float),
                                     np.zeros(len(elems)), length)
         elif isinstance(load, PatchLoad):
-            _add_patch(model, lb, load, key)
+            edges = edges or EdgeIndex(model)
+            _add_patch(model, lb, load, key, edges)
         elif isinstance(load, TemperatureLoad):
             hit = match_members(ids, load.members)
             if not hit:
@@ -178,22 +285,5 @@ def _node(model: Model, name: str, key: str) -> int:
         raise CaseError(key, f'no node named "{name}"') from None
 
 
-def _add_patch(model: Model, lb: _LoadBuilder, load: PatchLoad, key: str) -> None:
-    p = np.asarray(load.per_length, dtype=float)
-    s = 0.0
-    end = np.inf if load.end is None else load.end
-    for a, b in zip(load.path[:-1], load.path[1:]):
-        for name in (a, b):
-            _node(model, name, f"{key}.path")
-        chain = _segment_elements(model, a, b)
-        if chain is None:
-            raise CaseError(f"{key}.path", f'nodes "{a}" and "{b}" are not joined by a member')
-        for f, e, rev in chain:
-            length = float(_element_lengths(model, f, np.array([e]))[0])
-            lo, hi = max(load.start, s), min(end, s + length)
-            if hi > lo:
-                u0, u1 = lo - s, hi - s
-                if rev:  # distances are measured from node j of this element
-                    u0, u1 = length - u1, length - u0
-                lb.add_element_load(f, np.array([e]), p, np.array([u0]), np.array([u1]))
-            s += length
+def _add_patch(model: Model, lb: _LoadBuilder, load: PatchLoad, key: str, edges: EdgeIndex | None = None) -> None:
+    add_path_load(lb, path_chain(model, load.path, f"{key}.path", edges), load.per_length, load.start, load.end)

@@ -39,6 +39,17 @@ stable states is reported (:func:`stability_warnings`).  Without
 (``du . r > 0`` with ``du = -K^-1 r``, which proves that the symmetric part
 of ``K`` is not positive definite) stands in for the count.
 
+The count at a converged state is read from the factorisation of the last
+iteration when that tangent was positive definite and its residual was
+already below :data:`PIVOT_REUSE_RATIO` of the force scale: the state has
+moved by one small Newton correction since, which cannot turn a positive
+definite tangent indefinite unless the state is at a critical point to
+within that correction.  Otherwise (an indefinite or unknown last count,
+a large last step, convergence without a step) the converged state's
+tangent is factorised once more.  ``NewtonSettings.stability = False``
+skips the count at converged states altogether (solves whose stability
+nobody reads; the iterations are still checked).
+
 Convergence test (the only one): an increment has converged when
 
     ||r||_2 <= max(tolerance * reference, roundoff)
@@ -72,6 +83,7 @@ class NewtonSettings:
     max_total_iterations: int = 400    # Newton iterations of the whole load path (a budget per result)
     max_total_cuts: int = 40           # increment cuts of the whole load path (a budget per result)
     whole_load_first: bool = True      # try the whole load in one increment before 1/increments
+    stability: bool = True             # count the negative pivots at each converged state
 
 
 @dataclass(frozen=True)
@@ -126,6 +138,9 @@ class _Step:
     history: list = field(default_factory=list)
     indefinite: bool = False     # some iteration's tangent was not positive definite
     tangent: object = None       # the tangent at the converged state
+    # negative pivots of the converged state read from the last iteration's
+    # factorisation (see PIVOT_REUSE_RATIO), None when it must be counted
+    known_pivots: int | None = None
 
 
 def _dot(a, b) -> float:
@@ -245,6 +260,20 @@ def negative_pivots(problem, K) -> int | None:
     return None if found is None else int(found[1])
 
 
+#: the negative pivots of the last iteration's tangent stand for those of
+#: the converged state when that iteration's relative residual was below
+#: this (Newton's quadratic convergence: the last correction is of the
+#: order of this fraction of the increment's movement)
+PIVOT_REUSE_RATIO = 1e-3
+
+
+def _iterate_pivots(problem, K) -> int | None:
+    """Negative pivots of ``K`` when the factorisation just made gives them, else None."""
+    count = getattr(problem, "inertia", None)
+    found = None if count is None else count(K, factorized_only=True)
+    return None if found is None else int(found[1])
+
+
 def indefinite_iterate(problem, K, du, r) -> bool:
     """True when the tangent ``K`` just factorised for ``du = -K^-1 r`` is indefinite.
 
@@ -253,11 +282,22 @@ def indefinite_iterate(problem, K, du, r) -> bool:
     ``du . r = -r K^-1 r`` is negative for a positive definite ``K``, so a
     positive value proves an indefinite tangent.
     """
-    count = getattr(problem, "inertia", None)
-    found = None if count is None else count(K, factorized_only=True)
-    if found is not None:
-        return found[1] > 0
+    return _indefinite(_iterate_pivots(problem, K), du, r)
+
+
+def _indefinite(negatives: int | None, du, r) -> bool:
+    if negatives is not None:
+        return negatives > 0
     return _dot(du, r) > INDEFINITE_SLOPE * _norm(du) * _norm(r)
+
+
+def converged_pivots(problem, result: "_Step", settings: NewtonSettings) -> int | None:
+    """Negative pivots at the converged state of ``result`` (None: unknown or not wanted)."""
+    if not settings.stability:
+        return None
+    if result.known_pivots is not None:
+        return result.known_pivots
+    return negative_pivots(problem, result.tangent)
 
 
 #: iterations allowed to the first attempt at the whole load in one
@@ -346,12 +386,14 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
     ratio = _relative(r, ref)
     roundoff = float(getattr(problem, "roundoff", 0.0))
     indefinite = False
+    known = None      # negative pivots of the last factorised tangent, when it may stand for the next state's
     for it in range(limit + 1):
         history.append(ratio)
         if not math.isfinite(ratio):
             return _Step(state, False, it, ratio, "non-finite", history=history)
         if is_converged(ratio * ref, ref, settings.tolerance, roundoff):
-            return _Step(state, True, it, ratio, history=history, indefinite=indefinite, tangent=K)
+            return _Step(state, True, it, ratio, history=history, indefinite=indefinite, tangent=K,
+                         known_pivots=known)
         if it == limit:
             break
         if patience is not None and it >= patience and not ratio < 0.1 * history[-2]:
@@ -362,7 +404,9 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
             return _Step(state, False, it, ratio, "mechanism", mechanism=exc, history=history)
         if not np.all(np.isfinite(du)):
             return _Step(state, False, it, ratio, "non-finite", history=history)
-        indefinite |= indefinite_iterate(problem, K, du, r)
+        negatives = _iterate_pivots(problem, K)
+        indefinite |= _indefinite(negatives, du, r)
+        known = 0 if negatives == 0 and ratio <= PIVOT_REUSE_RATIO else None
         if indefinite and stop_on_indefinite:
             return _Step(state, False, it + 1, ratio, "indefinite", history=history, indefinite=True)
         state, r, ref, K, ratio, alpha = _line_search(problem, state, du, r, ratio, lam, settings)
@@ -410,10 +454,11 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
     pivots: list = []
     path: list = []
     jumped: list = []
+    counting = settings.stability and hasattr(problem, "inertia")
 
     def finish():
         # one warning per kind for the whole path, logged once
-        warnings = stability_warnings(done, pivots, jumped, hasattr(problem, "inertia"))
+        warnings = stability_warnings(done, pivots, jumped, counting)
         for w in warnings:
             log.warning(w)
         return tuple(warnings), tuple(pivots), tuple(path)
@@ -432,9 +477,9 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
             softer = not (linear > 0.0 and moved <= SOFTENING_LIMIT * linear)
         total_iterations += result.iterations
         history.extend(result.history)
-        neg = negative_pivots(problem, result.tangent) if result.converged else None
+        neg = converged_pivots(problem, result, settings) if result.converged else None
         if result.converged and not result.indefinite and not softer and neg in (0, None) and not (
-                neg is None and hasattr(problem, "inertia")):
+                neg is None and counting):
             state, lam, last_ratio = result.state, 1.0, result.ratio
             problem.commit(state)
             done.append(lam)
@@ -461,9 +506,9 @@ def follow_load_path(problem, settings: NewtonSettings = NewtonSettings(), progr
             state, lam, last_ratio = result.state, target, result.ratio
             problem.commit(state)
             done.append(lam)
-            # the stability of the converged state: one more factorisation
-            # (of the tangent at the converged state) per converged increment
-            pivots.append(negative_pivots(problem, result.tangent))
+            # the stability of the converged state (one more factorisation
+            # unless the last iteration's may stand for it)
+            pivots.append(converged_pivots(problem, result, settings))
             path.append(observe(problem, state, lam))
             cuts = 0
             if progress is not None:

@@ -48,7 +48,7 @@ class StaticProblem:
     """Residual/tangent pair of one combination for the Newton driver."""
 
     def __init__(self, model: Model, loads: LoadVectors, assembler: Assembler | None = None,
-                 linear_solver: str | linear.LinearSolver = "auto"):
+                 linear_solver: str | linear.LinearSolver = "auto", start_out_of_balance: np.ndarray | None = None):
         self.model = model
         self.loads = loads
         self.assembler = assembler or Assembler(model)
@@ -61,7 +61,14 @@ class StaticProblem:
         else:
             self.solver = linear.make_linear_solver(linear_solver, symmetric=not model.has_rotations)
         self._start = initial_state(model)
-        self._r0 = self.assembler.evaluate(self._start, loads, 0.0, want_tangent=False).internal
+        # the last successful evaluation ``(state, λ, Evaluation)``: the
+        # driver commits, and the result is built from, the state it last
+        # evaluated, so those need no evaluation of their own
+        self._last = None
+        # the internal forces of the start at λ = 0, unless a subclass that
+        # starts elsewhere gives its own out-of-balance
+        self._r0 = (self.assembler.evaluate(self._start, loads, 0.0, want_tangent=False).internal
+                    if start_out_of_balance is None else start_out_of_balance)
         self._pres = np.flatnonzero(loads.prescribed != 0.0)
         # (node, direction) of each prescribed DOF, found once
         owner = np.empty((model.ndof, 2), dtype=np.int64)
@@ -145,7 +152,24 @@ class StaticProblem:
             self.failure_reason = (f"the catenary equations of {bad.size} cable element(s) (first in member "
                                    f'"{mem.id}") did not converge at load factor {lam:.4f}')
             return None
+        self._last = (state, lam, ev)
         return ev
+
+    def _assembly_loads(self, lam: float) -> tuple[LoadVectors, float]:
+        """The loads and the factor on them that the assembly is given at load factor ``lam``."""
+        return self.loads, lam
+
+    def evaluation_at(self, state: State, lam: float) -> Evaluation:
+        """Forces (no tangent needed) at ``state`` and load factor ``lam``.
+
+        The last evaluation when it was of this very state (the same object)
+        at this load factor, otherwise a new one.
+        """
+        last = self._last
+        if last is not None and last[0] is state and last[1] == lam:
+            return last[2]
+        loads, factor = self._assembly_loads(lam)
+        return self.assembler.evaluate(state, loads, factor, want_tangent=False)
 
     def evaluate(self, state: State, lam: float, want_tangent: bool = True):
         """Residual, force scale and tangent; a failed element makes the residual NaN.
@@ -156,7 +180,8 @@ class StaticProblem:
         step (the line search shortens it, the increment is cut), never as
         a converged one.  ``failure_reason`` keeps the cause.
         """
-        ev = self._checked_evaluation(state, self.loads, lam, want_tangent, lam)
+        loads, factor = self._assembly_loads(lam)
+        ev = self._checked_evaluation(state, loads, factor, want_tangent, lam)
         if ev is None:
             return np.full(len(self.free), np.nan), 1.0, None
         r = self.out_of_balance(ev, lam)[self.free]
@@ -177,7 +202,15 @@ class StaticProblem:
         return State(pos, rot)
 
     def commit(self, state: State) -> None:
-        self.assembler.remember(self.assembler.element_responses(state, self.loads, 1.0, False))
+        # warm starts for the next increment: the element responses of the
+        # converged state, usually the driver's last evaluation
+        last = self._last
+        if last is not None and last[0] is state:
+            responses = last[2].responses
+        else:
+            loads, factor = self._assembly_loads(1.0)
+            responses = self.assembler.element_responses(state, loads, factor, False)
+        self.assembler.remember(responses)
         self.last_increment_solved, self._solved = self._solved, False
         self.failure_reason = ""
 
@@ -522,7 +555,7 @@ def solve_combination(model: Model, name: str, factors: Mapping[str, float],
     else:
         outcome = follow_load_path(problem, settings, progress)
     lam = outcome.load_factor
-    ev = problem.assembler.evaluate(outcome.state, loads, lam, want_tangent=False)
+    ev = problem.evaluation_at(outcome.state, lam)
     reactions = _reactions(problem, ev, lam)
     equilibrium = equilibrium_check(problem, ev, reactions, lam)
     notes = list(model.warnings)

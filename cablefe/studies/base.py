@@ -78,17 +78,21 @@ class FromBaseProblem(StaticProblem):
             assembler.__dict__.update(session.assembler.__dict__)
             assembler.model = model
             assembler._guess = {}
+        own = model is None or model is session.model
         model = model or session.model
         # StaticProblem's own set-up (attributes its methods and the driver
-        # read), then the start moved to the base state
-        super().__init__(model, session.base_loads + added, assembler, session.solver)
+        # read), with the start at the base state: its out-of-balance in the
+        # session's model is the session's, found once
+        r0 = session.base_out_of_balance if own else np.zeros(model.ndof)
+        super().__init__(model, session.base_loads + added, assembler, session.solver, start_out_of_balance=r0)
         self.base = session.base_loads
         self.added = added
         self._start = session.base_state
-        self.assembler.forget()
         self.assembler.remember(session.base_responses)
-        ev = self.assembler.evaluate(self._start, self.base, 1.0, want_tangent=False)
-        self._r0 = ev.internal - self.base.nodal
+        if not own:
+            # other unstressed lengths: the base state is out of balance
+            ev = self.assembler.evaluate(self._start, self.base, 1.0, want_tangent=False)
+            self._r0 = ev.internal - self.base.nodal
         # modified Newton with the base factorization, while it converges fast
         self._base_factor = session.base_factor if model is session.model else None
         self._previous = None
@@ -97,6 +101,9 @@ class FromBaseProblem(StaticProblem):
 
     def _loads_at(self, lam: float) -> LoadVectors:
         return self.base + self.added.scaled(lam)
+
+    def _assembly_loads(self, lam: float) -> tuple[LoadVectors, float]:
+        return self._loads_at(lam), 1.0
 
     def impose(self, state: State, lam_from: float, lam_to: float) -> State:
         return state   # support movements are those of the base state
@@ -232,6 +239,8 @@ class Session:
         # the gradient rows of tensions and reactions from its element blocks
         self.base_evaluation = self.assembler.evaluate(self.base_state, self.base_loads, 1.0, True)
         self.base_tangent = self.base_evaluation.tangent
+        # the base state's out-of-balance, which every solve's residual removes
+        self.base_out_of_balance = self.base_evaluation.internal - self.base_loads.nodal
         self.base_factor = None
         if self.base_tangent.shape[0]:
             try:
@@ -242,7 +251,9 @@ class Session:
                 pass
 
     def solve(self, index: int, added: LoadVectors, model: Model | None = None) -> TaskResult:
-        settings = self.ctx.newton
+        # a study records no stability per solve: no pivot counts at the
+        # converged states (the iterations still check their tangents)
+        settings = replace(self.ctx.newton, stability=False)
         plain = replace(settings, increments=1, line_search=0, max_cuts=0,
                         max_iterations=min(PLAIN_ITERATIONS, settings.max_iterations))
         problem = FromBaseProblem(self, added, model)
@@ -257,7 +268,7 @@ class Session:
         m = problem.model
         lam = outcome.load_factor
         loads = problem._loads_at(lam)
-        responses = problem.assembler.element_responses(outcome.state, loads, 1.0, False)
+        responses = problem.evaluation_at(outcome.state, lam).responses
         mx, mn, slack = member_extremes(m, responses, loads.beam_loads)
         w = self.ctx.watch
         disp = outcome.state.positions[w.nodes] - m.coordinates[w.nodes]

@@ -14,8 +14,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import CaseError
-from ..model import LoadVectors, Model, _add_patch, _element_lengths, _LoadBuilder, _segment_elements
-from ..spec import PatchLoad, StudySpec
+from ..model import LoadVectors, Model, PathChain, _LoadBuilder, add_path_load, path_chain
+from ..spec import StudySpec
 
 
 @dataclass(frozen=True)
@@ -27,11 +27,13 @@ class Lane:
     path : node ids handed to patch loads (declared nodes, ends of members)
     nodes : (m + 1,) node indices of the lane points in order
     s : (m + 1,) distance of each lane point from the start, m
+    chain : the elements along the lane (what patch loads are put on)
     """
 
     path: tuple[str, ...]
     nodes: np.ndarray
     s: np.ndarray
+    chain: PathChain
 
     @property
     def length(self) -> float:
@@ -42,19 +44,9 @@ def build_lane(model: Model, study: StudySpec) -> Lane:
     """The lane of ``study`` in ``model``; CaseError at ``<study>.path`` if not a chain."""
     key = f"{study.key}.path"
     path = _member_chain(model, study.path[0], key) if study.path_pattern else tuple(study.path)
-    nodes = [model.node_index[path[0]]]
-    s = [0.0]
-    for a, b in zip(path[:-1], path[1:]):
-        chain = _segment_elements(model, a, b)
-        if chain is None:
-            raise CaseError(key, f'nodes "{a}" and "{b}" are not joined by a member')
-        for f, e, rev in chain:
-            t = model.families[f]
-            n0, n1 = t.nodes[e]
-            length = float(_element_lengths(model, f, np.array([e]))[0])
-            nodes.append(int(n0 if rev else n1))
-            s.append(s[-1] + length)
-    return Lane(path, np.asarray(nodes, dtype=np.int64), np.asarray(s))
+    chain = path_chain(model, path, key)
+    s = np.concatenate([[0.0], np.cumsum(chain.length)])
+    return Lane(path, chain.nodes, s, chain)
 
 
 def _member_chain(model: Model, pattern: str, key: str) -> tuple[str, ...]:
@@ -85,10 +77,9 @@ def _member_chain(model: Model, pattern: str, key: str) -> tuple[str, ...]:
 def patch_loads(model: Model, lane: Lane, intervals, per_length) -> LoadVectors:
     """Uniform load per length (N/m) on the intervals ``[(start, end), ...]`` (m along the lane)."""
     lb = _LoadBuilder(model)
-    p = tuple(float(v) for v in per_length)
     for a, b in intervals:
         if b > a:
-            _add_patch(model, lb, PatchLoad("", lane.path, p, float(a), float(b)), "studies")
+            add_path_load(lb, lane.chain, per_length, float(a), float(b))
     return lb.freeze()
 
 
