@@ -29,8 +29,10 @@ Each row is a check that cablefe's tests assert on every run: the problem,
 the published source of the reference (author, year, title, equation or
 table; `from memory` where the value was recalled rather than read,
 `common practice` for a trade rule of thumb), the reference value, cablefe's
-value, their largest relative difference and the tolerance the test allows,
-and the test that asserts it. For arrays the first values are shown.
+value, their largest difference relative to the largest reference value
+(the absolute difference, marked "abs.", where the reference is zero) and
+the tolerance the test allows, and the test that asserts it. For arrays the
+first values are shown.
 
 This file is generated: `python docs/make_verification.py` runs the suite
 and rewrites it; `tests/test_verification_manual.py` fails when a check is
@@ -56,6 +58,12 @@ def _cell(text: str) -> str:
     return str(text).replace("|", "\\|").replace("\n", " ")
 
 
+def _difference(r: dict) -> str:
+    if r["relative_difference"] is None:    # the reference is zero: only an absolute difference
+        return f"{r['absolute_difference']:.1e} abs."
+    return f"{r['relative_difference']:.1e}"
+
+
 def render(records: list[dict]) -> str:
     by_file: dict[str, list[dict]] = defaultdict(list)
     for r in records:
@@ -71,7 +79,7 @@ def render(records: list[dict]) -> str:
                                          f"atol {r['atol']:.0e}" if r["atol"] else "") if t) or "exact"
             lines.append("| " + " | ".join(_cell(c) for c in (
                 r["problem"], r["source"], _fmt(r["reference"]) + unit, _fmt(r["computed"]) + unit,
-                f"{r['relative_difference']:.1e}", tol, f"`{r['test'].split('::', 1)[1]}`")) + " |")
+                _difference(r), tol, f"`{r['test'].split('::', 1)[1]}`")) + " |")
     return "\n".join(lines) + "\n"
 
 

@@ -31,6 +31,11 @@ def spec_factory():
 # disagree on which checks exist.
 
 _VERIFICATION_RECORDS: list[dict] = []
+_RECORD_INDEX: dict[tuple[str, str], int] = {}
+# appended to a record's problem when the test repeats the check on several
+# cases (hypothesis examples): the values shown are the first case's, the
+# relative difference the worst over all cases
+_REPEATED = " (repeated on several cases: first shown, worst difference)"
 
 
 def _summary(values) -> float | list[float]:
@@ -50,17 +55,35 @@ class Verification:
 
         ``problem`` says what is checked; ``source`` names the outside
         reference (author, year, title, equation or table; ``from memory``
-        or ``common practice`` where that applies).
+        or ``common practice`` where that applies). A check repeated with
+        the same problem in one test (a hypothesis test runs its body once
+        per drawn example) is one record: the first case's values and the
+        worst relative difference.
         """
         from numpy.testing import assert_allclose
         computed_a = np.asarray(computed, dtype=float)
         reference_a = np.asarray(reference, dtype=float)
-        scale = np.maximum(np.abs(reference_a), np.finfo(float).tiny)
-        worst = float(np.max(np.abs(computed_a - reference_a) / scale)) if reference_a.size else 0.0
-        _VERIFICATION_RECORDS.append({
-            "test": self.nodeid, "problem": problem, "source": source, "unit": unit,
-            "reference": _summary(reference_a), "computed": _summary(computed_a),
-            "relative_difference": worst, "rtol": rtol, "atol": atol})
+        # normwise: the largest difference over the largest reference value,
+        # so that reference entries of zero (or round-off) do not blow it up;
+        # None when the reference is all zero (then the absolute difference tells)
+        difference = float(np.max(np.abs(computed_a - reference_a))) if reference_a.size else 0.0
+        size = float(np.max(np.abs(reference_a))) if reference_a.size else 0.0
+        worst = difference / size if size > 0.0 else None
+        key = (self.nodeid, problem)
+        if key in _RECORD_INDEX:
+            record = _VERIFICATION_RECORDS[_RECORD_INDEX[key]]
+            known = [v for v in (record["relative_difference"], worst) if v is not None]
+            record["relative_difference"] = max(known) if known else None
+            record["absolute_difference"] = max(record["absolute_difference"], difference)
+            if not record["problem"].endswith(_REPEATED):
+                record["problem"] += _REPEATED
+        else:
+            _RECORD_INDEX[key] = len(_VERIFICATION_RECORDS)
+            _VERIFICATION_RECORDS.append({
+                "test": self.nodeid, "problem": problem, "source": source, "unit": unit,
+                "reference": _summary(reference_a), "computed": _summary(computed_a),
+                "relative_difference": worst, "absolute_difference": difference,
+                "rtol": rtol, "atol": atol})
         assert_allclose(computed_a, reference_a, rtol=rtol, atol=atol, err_msg=problem)
 
 

@@ -55,18 +55,23 @@ def truss_problem(P_ref):
     return StaticProblem(model, model.load_cases["p"]), model.node_index["C"]
 
 
-def test_limit_point_formula_is_the_maximum_of_the_load():
+def test_limit_point_formula_is_the_maximum_of_the_load(verify):
     # source: the recalled limit-point formula checked against scipy's bounded
     # search for the maximum of the closed-form P(u) (Bažant & Cedolin 1991, ch. 4)
     u_star, P_max = limit_point()
     best = minimize_scalar(lambda u: -truss_load(u), bounds=(0.0, H0), method="bounded",
                            options={"xatol": 1e-10})
     # a flat maximum: xatol 1e-10 on u gives P to ~P'' xatol^2, far below 1e-9
-    assert_allclose(best.x, u_star, atol=1e-6)
-    assert_allclose(-best.fun, P_max, rtol=1e-9)
+    verify.check("Von Mises truss (a = 10 m, H0 = 1 m): apex drop at the limit point, recalled "
+                 "cos(theta*) = cos(alpha)^(1/3) vs scipy's bounded maximum of P(u)",
+                 "Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory); "
+                 "scipy.optimize.minimize_scalar", best.x, u_star, atol=1e-6, unit="m")
+    verify.check("Von Mises truss: limit load, recalled formula vs scipy's bounded maximum of P(u)",
+                 "Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory); "
+                 "scipy.optimize.minimize_scalar", -best.fun, P_max, rtol=1e-9, unit="N")
 
 
-def test_arc_length_traces_the_snap_through_of_the_von_mises_truss():
+def test_arc_length_traces_the_snap_through_of_the_von_mises_truss(verify):
     u_star, P_max = limit_point()
     P_ref = 2.0 * P_max            # λ = 1 only exists on the inverted branch
     prob, apex = truss_problem(P_ref)
@@ -82,7 +87,10 @@ def test_arc_length_traces_the_snap_through_of_the_von_mises_truss():
     # and converged means |r| <= tolerance * reference
     refs = np.array([prob.evaluate(s, l, False)[1] for s, l in zip(out.states, lam)])
     # source: Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory)
-    assert_allclose(lam * P_ref, truss_load(u), rtol=0, atol=SETTINGS.tolerance * refs.max())
+    verify.check("Von Mises truss by arc length (bars, a = 10 m, H0 = 1 m): apex load at every "
+                 "converged step, P = 2EA(H0 - u)(1/L - 1/L0), through the snap-through",
+                 "Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory)",
+                 lam * P_ref, truss_load(u), rtol=0, atol=SETTINGS.tolerance * refs.max(), unit="N")
 
     # the path passes the limit point, the flat state u = H0, the minimum and
     # the inverted flat state u = 2 H0, then rises again to λ = 1
@@ -92,7 +100,9 @@ def test_arc_length_traces_the_snap_through_of_the_von_mises_truss():
     # landed on the target exactly: P(u) = P_ref on the inverted branch
     u_end = brentq(lambda x: truss_load(x) - P_ref, 2.0 * H0, 4.0 * H0, xtol=1e-14)
     # dP/du there is ~3e3 N/m: |r| <= 1e-10 * ref moves u by < 1e-9 m
-    assert_allclose(u[-1], u_end, atol=1e-9)
+    verify.check("Von Mises truss by arc length: final apex drop where P(u) = 2 P_max on the "
+                 "inverted branch", "Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from "
+                 "memory); root by scipy.optimize.brentq", u[-1], u_end, atol=1e-9, unit="m")
     # consecutive points are ds apart in the only unknown (Crisfield's cylinder)
     assert_allclose(np.abs(np.diff(u))[:-1], ds, rtol=1e-12)
 
@@ -106,7 +116,13 @@ def test_arc_length_traces_the_snap_through_of_the_von_mises_truss():
     bound = 0.5 * np.abs(d2).max() * (ds / 2) ** 2
     # source: Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory)
     assert 0.0 <= P_max - lam[k] * P_ref + SETTINGS.tolerance * refs.max() <= bound
-    assert abs(u[k] - u_star) <= ds / 2 * (1 + 1e-9)
+    verify.check("Von Mises truss by arc length: largest load before the snap vs the limit load at "
+                 "cos(theta*) = cos(alpha)^(1/3) (bound 1/2 max|P''| (ds/2)^2; one-sided, asserted above)",
+                 "Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory)",
+                 lam[k] * P_ref, P_max, rtol=0, atol=bound + SETTINGS.tolerance * refs.max(), unit="N")
+    verify.check("Von Mises truss by arc length: apex drop of the path's highest point before the snap "
+                 "vs the limit point u* (within half a step)", "Bažant & Cedolin 1991, Stability of "
+                 "Structures, ch. 4 (from memory)", u[k], u_star, rtol=0, atol=ds / 2 * (1 + 1e-9), unit="m")
 
 
 def test_load_control_cannot_follow_past_the_limit_point():
@@ -173,7 +189,7 @@ class CubicSpring:
         return r / K[0, 0]
 
 
-def test_singular_tangent_at_the_limit_points_does_not_stop_the_driver():
+def test_singular_tangent_at_the_limit_points_does_not_stop_the_driver(verify):
     # steps of exactly 0.25 land on u = 1 and u = 2, where f' = 0
     prob = CubicSpring()
     out = follow_arc_length(prob, SETTINGS, arc_length=0.25, max_arc_length=0.25, target_load_factor=4.0)
@@ -182,10 +198,15 @@ def test_singular_tangent_at_the_limit_points_does_not_stop_the_driver():
     u = np.array([s[0] for s in out.states])
     lam = np.array(out.increments)
     # source: the closed form f(u) of the problem; tolerance as the Newton test
-    assert_allclose(lam, u**3 - 4.5 * u**2 + 6.0 * u, rtol=0, atol=SETTINGS.tolerance * max(lam.max(), 1.0))
+    verify.check("arc length on a cubic spring r = u^3 - 4.5u^2 + 6u - lambda with singular tangents "
+                 "at both limit points: load factor at every converged step",
+                 "closed form f(u) = u^3 - 4.5u^2 + 6u (hand calculation)",
+                 lam, u**3 - 4.5 * u**2 + 6.0 * u, rtol=0, atol=SETTINGS.tolerance * max(lam.max(), 1.0))
     # landed where f(u) = 4 on the rising branch u > 2 (brentq on the cubic)
-    assert_allclose(u[-1], brentq(lambda x: x**3 - 4.5 * x**2 + 6.0 * x - 4.0, 2.0, 3.0, xtol=1e-15),
-                    atol=1e-9)
+    verify.check("arc length on the cubic spring: end point where f(u) = 4 on the rising branch u > 2",
+                 "closed form f(u); root by scipy.optimize.brentq",
+                 u[-1], brentq(lambda x: x**3 - 4.5 * x**2 + 6.0 * x - 4.0, 2.0, 3.0, xtol=1e-15),
+                 atol=1e-9)
     assert np.any(np.diff(lam) < 0)
 
 

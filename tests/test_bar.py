@@ -22,14 +22,19 @@ def _fd_tangent(xi, xj, L0, EA, tension_only, h=1e-6):
     return K
 
 
-def test_axial_force_is_engineering_strain_of_unstressed_length():
+def test_axial_force_is_engineering_strain_of_unstressed_length(verify):
     # source: definition of the axial force from the engineering strain of the
     # unstressed length, N = EA (L - L0) / L0 (docs/case-format.md, member types)
     xi = np.array([[0.0, 0.0, 0.0]])
     xj = np.array([[3.0, 4.0, 0.0]])
     r = bar.response(xi, xj, np.array([4.9]), np.array([2.0e6]))
-    assert_allclose(r.tension, 2.0e6 * (5.0 - 4.9) / 4.9, rtol=1e-14)
-    assert_allclose(r.force[0, 3:], r.tension[0] * np.array([0.6, 0.8, 0.0]), rtol=1e-14)
+    verify.check("bar 3-4-5 m long, unstressed length 4.9 m, EA = 2e6 N: axial force",
+                 "engineering strain of the unstressed length, N = EA (L - L0)/L0 (hand calculation)",
+                 r.tension, 2.0e6 * (5.0 - 4.9) / 4.9, rtol=1e-14, unit="N")
+    verify.check("bar 3-4-5 m long: end force = N times the direction cosines (0.6, 0.8, 0)",
+                 "statics of a two-force member (hand calculation)",
+                 r.force[0, 3:], 2.0e6 * (5.0 - 4.9) / 4.9 * np.array([0.6, 0.8, 0.0]), rtol=1e-14,
+                 atol=0.0, unit="N")
     assert_allclose(r.force[0, :3], -r.force[0, 3:], rtol=1e-14)
 
 

@@ -8,7 +8,7 @@ elastica (scipy solve_bvp), Euler buckling, and handbook fixed-end actions.
 import mpmath
 import numpy as np
 import pytest
-from hypothesis import assume, given, settings
+from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 from numpy.testing import assert_allclose
@@ -19,6 +19,8 @@ from scipy.spatial.transform import Rotation
 from cablefe.elements import beam
 
 EPS = np.finfo(float).eps
+# the verify fixture only records, so one instance may serve every example
+SHARED_FIXTURE = [HealthCheck.function_scoped_fixture]
 
 # A steel I-ish section, deliberately unequal Iy, Iz so that mix-ups show.
 STEEL = dict(E=2.1e11, G=8.1e10, A=1.2e-2, Iy=8.0e-5, Iz=2.5e-5, J=1.5e-6)
@@ -52,19 +54,21 @@ def blockdiag4(Q):
 # ---------------------------------------------------------------------------
 
 
-@settings(max_examples=40, deadline=None)
+@settings(max_examples=40, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(v=vec3(-10, 10), w=vec3(-10, 10))
-def test_skew_is_cross_product(v, w):
+def test_skew_is_cross_product(verify, v, w):
     # keep products of components out of the underflow range
     assume(np.all((np.abs(np.outer(v, w)) > 1e-250) | (np.outer(v, w) == 0)))
     # source: definition of the cross product matrix (any vector algebra text)
-    assert_allclose(beam.skew(v[None])[0] @ w, np.cross(v, w), rtol=0,
-                    atol=10 * EPS * np.abs(v).max() * np.abs(w).max())
+    verify.check("skew-symmetric matrix of v times w = v x w, random v, w",
+                 "definition of the cross product matrix (any vector algebra text); numpy.cross",
+                 beam.skew(v[None])[0] @ w, np.cross(v, w), rtol=0,
+                 atol=10 * EPS * np.abs(v).max() * np.abs(w).max())
 
 
-@settings(max_examples=60, deadline=None)
+@settings(max_examples=60, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(theta=vec3(-10, 10))
-def test_expm_matches_matrix_exponential(theta):
+def test_expm_matches_matrix_exponential(verify, theta):
     # source: the matrix exponential series, summed by mpmath.expm at 30
     # digits (independent of Rodrigues' formula).
     with mpmath.workdps(30):
@@ -72,14 +76,16 @@ def test_expm_matches_matrix_exponential(theta):
     R = beam.expm_so3(theta[None])[0]
     # Rodrigues in double precision: a few eps per entry, plus eps |theta|
     # from the argument of sin and cos.
-    assert_allclose(R, ref, rtol=0, atol=10 * EPS * (1 + np.linalg.norm(theta)))
+    verify.check("rotation matrix exp(skew(theta)) for random rotation vectors, |theta_i| <= 10 rad",
+                 "matrix exponential series summed by mpmath.expm at 30 digits", R, ref, rtol=0,
+                 atol=10 * EPS * (1 + np.linalg.norm(theta)))
 
 
-@settings(max_examples=60, deadline=None)
+@settings(max_examples=60, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(axis=vec3(-1, 1).filter(lambda a: np.linalg.norm(a) > 1e-3),
        angle=st.one_of(st.floats(0.0, np.pi), st.sampled_from(
            [0.0, 1e-14, 1e-9, 1e-4, np.pi / 2, np.pi - 1e-4, np.pi - 1e-9, np.pi - 1e-13, np.pi])))
-def test_logm_inverts_expm_near_zero_and_pi(axis, angle):
+def test_logm_inverts_expm_near_zero_and_pi(verify, axis, angle):
     theta = angle * unit(axis)
     R = Rotation.from_rotvec(theta).as_matrix()  # source: scipy Rotation (quaternion route)
     got = beam.logm_so3(R[None])[0]
@@ -90,8 +96,10 @@ def test_logm_inverts_expm_near_zero_and_pi(axis, angle):
     if angle < np.pi - 1e-6:
         # away from pi the principal logarithm is unique; the axis error of a
         # matrix with entry round-off eps grows like eps / sin(angle).
-        assert_allclose(got, Rotation.from_matrix(R).as_rotvec(), rtol=0,
-                        atol=20 * EPS / max(np.sin(angle), 1e-6) + 20 * EPS)
+        verify.check("rotation vector (matrix logarithm) of random rotations, angle up to pi - 1e-6",
+                     "scipy.spatial.transform.Rotation.as_rotvec (quaternion route)",
+                     got, Rotation.from_matrix(R).as_rotvec(), rtol=0,
+                     atol=20 * EPS / max(np.sin(angle), 1e-6) + 20 * EPS, unit="rad")
 
 
 # ---------------------------------------------------------------------------
@@ -161,9 +169,9 @@ def classical_frame_stiffness(L, E, G, A, Iy, Iz, J):
     return K
 
 
-@settings(max_examples=25, deadline=None)
+@settings(max_examples=25, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(d=vec3(-5, 5).filter(lambda v: np.linalg.norm(v) > 0.5), up=vec3(-1, 1), x0=vec3(-50, 50))
-def test_reference_tangent_is_classical_frame_stiffness(d, up, x0):
+def test_reference_tangent_is_classical_frame_stiffness(verify, d, up, x0):
     assume(np.linalg.norm(np.cross(unit(d), up)) > 1e-2)  # up must not be along the member
     xi, xj = x0[None], (x0 + d)[None]
     F0 = beam.local_frames(xi, xj, up[None])
@@ -174,7 +182,10 @@ def test_reference_tangent_is_classical_frame_stiffness(d, up, x0):
     K_ref = T.T @ classical_frame_stiffness(L0[0], **STEEL) @ T
     scale = np.abs(K_ref).max()
     # Same linear algebra up to round-off in the frame (|x0| up to 50 m).
-    assert_allclose(r.tangent[0], K_ref, rtol=0, atol=1e-11 * scale)
+    verify.check("beam tangent at the unloaded reference state = 12x12 linear 3D frame stiffness, "
+                 "random orientation and position", "Przemieniecki 1968, Theory of Matrix Structural "
+                 "Analysis, ch. 5; McGuire, Gallagher & Ziemian 2000, Matrix Structural Analysis, "
+                 "2nd ed., ch. 4 (chapters from memory)", r.tangent[0], K_ref, rtol=0, atol=1e-11 * scale)
     # Unloaded reference state: no internal force.
     assert_allclose(r.force, 0.0, atol=1e-12 * scale)
 
@@ -283,18 +294,22 @@ def test_tangent_matches_central_differences_strongly_deformed():
     assert np.all(np.abs(r.force).max(axis=1) / L0 > 1e-3 * np.abs(r.tangent).max(axis=(1, 2)))
 
 
-@settings(max_examples=25, deadline=None)
+@settings(max_examples=25, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(draw=state_strategy(2))
-def test_internal_forces_are_self_equilibrated(draw):
+def test_internal_forces_are_self_equilibrated(verify, draw):
     xi, xj, Ri, Rj, F0, L0, strain = deformed_state(2, draw)
     r = beam.response(xi, xj, Ri, Rj, F0, L0, **props(2), axial_strain=strain)
     f = r.force
     scale = np.abs(f).max() * (1 + np.abs(np.r_[xi, xj]).max())
     # source: Newton's laws for a free body: sum of forces and of moments
     # (about the origin) of the nodal actions on the element vanish.
-    assert_allclose(f[:, 0:3] + f[:, 6:9], 0.0, atol=1e-12 * scale)
+    verify.check("beam end forces at random large rotations: sum of forces", "Newton's laws, "
+                 "equilibrium of a free body (statics)", f[:, 0:3] + f[:, 6:9], 0.0, atol=1e-12 * scale,
+                 unit="N")
     moment = f[:, 3:6] + f[:, 9:12] + np.cross(xi, f[:, 0:3]) + np.cross(xj, f[:, 6:9])
-    assert_allclose(moment, 0.0, atol=1e-12 * scale)
+    verify.check("beam end forces at random large rotations: sum of moments about the origin",
+                 "Newton's laws, equilibrium of a free body (statics)", moment, 0.0, atol=1e-12 * scale,
+                 unit="N m")
     # Axial and shear resultants are the same at both ends (no span load).
     assert_allclose(r.local_end_forces[:, 0:3], r.local_end_forces[:, 6:9], atol=1e-12 * scale)
 
@@ -349,7 +364,7 @@ def test_rigid_body_motion(draw, spin, shift):
                     atol=rel * np.abs(a.tangent).max())
 
 
-def test_stress_free_strain_and_sign_of_axial_force():
+def test_stress_free_strain_and_sign_of_axial_force(verify):
     F0 = beam.local_frames(np.zeros((2, 3)), np.array([[2.0, 0, 0], [2.0, 0, 0]]))
     I = np.broadcast_to(np.eye(3), (2, 3, 3))
     strain = np.array([1.2e-5 * 40, -1.2e-5 * 25])  # alpha dT, heated and cooled
@@ -365,7 +380,9 @@ def test_stress_free_strain_and_sign_of_axial_force():
     r = beam.response(np.zeros((2, 3)), np.array([[2.0, 0, 0]] * 2), I, I, F0, L0, **props(2),
                       axial_strain=strain)
     N = -EA * strain / (1 + strain)
-    assert_allclose(r.axial_force, N, rtol=1e-12)
+    verify.check("beam held at its length, stress-free strain alpha dT (+40 K and -25 K): axial force "
+                 "N = EA (L0 - Ls)/Ls", "elementary restrained thermal bar (common practice)",
+                 r.axial_force, N, rtol=1e-12, unit="N")
     assert_allclose(r.local_end_forces[:, 0], N, rtol=1e-12)
     assert_allclose(r.local_end_forces[:, 6], N, rtol=1e-12)
     # Tension positive: f_i = -N e, f_j = +N e (cablefe.elements conventions).
@@ -433,7 +450,7 @@ ORIENT = beam.expm_so3(np.array([[0.3, -1.1, 0.7]]))[0]  # a general orientation
 
 
 @pytest.mark.parametrize("turns", [0.75, 1.0])
-def test_end_moment_rolls_cantilever_into_circle(turns):
+def test_end_moment_rolls_cantilever_into_circle(verify, turns):
     n_el, length = 20, 4.0
     EIy = STEEL["E"] * STEEL["Iy"]
     M = turns * 2 * np.pi * EIy / length  # moment about the local y axis
@@ -448,7 +465,10 @@ def test_end_moment_rolls_cantilever_into_circle(turns):
     Rad = EIy / M
     s = np.linspace(0, length, n_el + 1)
     R_exact = beam.expm_so3(np.outer(s / Rad, ORIENT[:, 1]))
-    assert_allclose(R, R_exact, rtol=0, atol=1e-9)
+    source = ("Euler-Bernoulli moment-curvature law M = EI/rho, exact for the inextensible elastica "
+              "(Timoshenko & Gere 1961, Theory of Elastic Stability, ch. 2; from memory)")
+    verify.check(f"cantilever (20 beams, 4 m) rolled by an end moment into {turns} of a circle: "
+                 "section rotations exp(kappa s)", source, R, R_exact, rtol=0, atol=1e-9)
     # The nodes are the vertices of chords of length L0/n (N = 0) inscribed in
     # the arc.  A chord spanning an arc angle phi sits on a circle of radius
     # (phi/2)/sin(phi/2) times the arc's radius (plane geometry).
@@ -457,14 +477,19 @@ def test_end_moment_rolls_cantilever_into_circle(turns):
     a = s / Rad
     ex, ez = ORIENT[:, 0], -ORIENT[:, 2]  # bending about +y turns x toward -z
     X_exact = Rad_nodes * (np.outer(np.sin(a), ex) + np.outer(1 - np.cos(a), ez))
-    assert_allclose(X, X_exact, rtol=0, atol=1e-9 * length)
+    verify.check("same cantilever: node positions on the arc (chords inscribed in the circle)",
+                 source + "; plane geometry of inscribed chords", X, X_exact, rtol=0,
+                 atol=1e-9 * length, unit="m")
     if turns == 1.0:
         assert_allclose(X[-1], 0.0, atol=1e-9 * length)  # full circle closes
         assert_allclose(R[-1], np.eye(3), atol=1e-9)
     # Pure bending: every section carries My = M, nothing else.
     lef = r.local_end_forces
-    assert_allclose(lef[:, [4, 10]], M, rtol=1e-8)
-    assert_allclose(lef[:, [0, 1, 2, 3, 5, 6, 7, 8, 9, 11]], 0.0, atol=1e-8 * M / length)
+    verify.check("same cantilever: bending moment My = M in every element (pure bending)",
+                 "statics of the free body beyond the section", lef[:, [4, 10]], M, rtol=1e-8, unit="N m")
+    verify.check("same cantilever: all other section forces and moments vanish (pure bending)",
+                 "statics of the free body beyond the section",
+                 lef[:, [0, 1, 2, 3, 5, 6, 7, 8, 9, 11]], 0.0, atol=1e-8 * M / length)
 
 
 def elastica_tip(k):
@@ -486,7 +511,7 @@ def elastica_tip(k):
     return sol.y[2, -1], sol.y[3, -1]
 
 
-def test_tip_load_follows_elastica_with_second_order_convergence():
+def test_tip_load_follows_elastica_with_second_order_convergence(verify):
     length, k = 3.0, 3.0  # P L^2 / EI = 3: tip rotation ~ 60 degrees
     EIy = STEEL["E"] * STEEL["Iy"]
     P = k * EIy / length**2
@@ -510,20 +535,29 @@ def test_tip_load_follows_elastica_with_second_order_convergence():
     # the rate is fitted on log-log data.
     rate = np.polyfit(np.log(meshes), np.log(errors), 1)[0]
     assert -2.3 < rate < -1.7, (rate, errors)
+    verify.check("cantilever under a dead tip load, P L^2/EI = 3, 5/10/20 beams: order of the tip "
+                 "error against the elastica", "Crisfield 1997, Non-linear Finite Element Analysis of "
+                 "Solids and Structures, Vol. 2, ch. 17 (second order; from memory)", -rate, 2.0, atol=0.3)
     # Richardson extrapolation with order 2 removes the leading error term;
     # the O(h^4) remainder is at least 20 times smaller than the n = 20 error.
     extrapolated = tips[-1] + (tips[-1] - tips[-2]) / 3
     assert np.hypot(*(extrapolated - [x_ref, w_ref])) < 0.05 * errors[-1], (extrapolated, errors)
+    verify.check("same cantilever: Richardson-extrapolated tip position (x/L, w/L) vs the elastica "
+                 "(distance asserted below 1/20 of the 20-beam error)", "Bisshopp & Drucker 1945, "
+                 "Large deflection of cantilever beams, Q. Appl. Math. 3, 272-275; solved with "
+                 "scipy.integrate.solve_bvp", extrapolated, [x_ref, w_ref], rtol=0, atol=0.05 * errors[-1])
     # Root section: statics of the whole cantilever gives a bending moment
     # P * x_tip about local y, and resultant force magnitude P.
     # source: equilibrium of the free body beyond the root (statics).
     lef = r.local_end_forces[0]
-    assert_allclose(lef[4], P * u[0], rtol=1e-8)
-    assert_allclose(np.linalg.norm(lef[0:3]), P, rtol=1e-8)
+    verify.check("same cantilever: root bending moment P x_tip", "statics of the free body beyond "
+                 "the root", lef[4], P * u[0], rtol=1e-8, unit="N m")
+    verify.check("same cantilever: root resultant force P", "statics of the free body beyond the root",
+                 np.linalg.norm(lef[0:3]), P, rtol=1e-8, unit="N")
     assert_allclose(lef[[3, 5]], 0.0, atol=1e-8 * P * length)
 
 
-def test_pinned_column_tangent_is_singular_at_euler_load():
+def test_pinned_column_tangent_is_singular_at_euler_load(verify):
     length = 5.0
     EI_weak = STEEL["E"] * min(STEEL["Iy"], STEEL["Iz"])
     # source: Euler 1744; pinned column P_cr = pi^2 EI / L^2 about the weak
@@ -569,7 +603,10 @@ def test_pinned_column_tangent_is_singular_at_euler_load():
     # Richardson extrapolation with order 2 removes the leading error term;
     # what is left is O(h^4), at least 20 times smaller than the n = 16 error.
     extrapolated = loads[-1] + (loads[-1] - loads[-2]) / 3
-    assert abs(extrapolated / P_euler - 1) < 0.05 * errors[-1], (extrapolated / P_euler, errors)
+    verify.check("pinned column, 5 m, 4/8/16 beams: Richardson-extrapolated load where the tangent "
+                 "turns singular vs pi^2 EI/L^2 (tolerance 1/20 of the 16-beam error)",
+                 "Euler 1744; Timoshenko & Gere 1961, Theory of Elastic Stability, ch. 2",
+                 extrapolated, P_euler, rtol=0.05 * errors[-1], unit="N")
 
 
 # ---------------------------------------------------------------------------
@@ -577,7 +614,7 @@ def test_pinned_column_tangent_is_singular_at_euler_load():
 # ---------------------------------------------------------------------------
 
 
-def test_full_span_uniform_load():
+def test_full_span_uniform_load(verify):
     xi = np.array([[0.0, 0, 0], [1.0, 2.0, 3.0]])
     xj = np.array([[6.0, 0, 0], [4.0, -1.0, 5.0]])
     F0 = beam.local_frames(xi, xj)
@@ -591,21 +628,26 @@ def test_full_span_uniform_load():
         ex = F0[e][:, 0]
         pa = ex * (ex @ p[e])
         pt = p[e] - pa  # transverse part
-        assert_allclose(f[e, 0:3], (pa + pt) * L[e] / 2, rtol=1e-12, atol=1e-9 * np.abs(p[e]).max())
-        assert_allclose(f[e, 6:9], (pa + pt) * L[e] / 2, rtol=1e-12, atol=1e-9 * np.abs(p[e]).max())
+        source = ("Young & Budynas 2002, Roark's Formulas for Stress and Strain, 7th ed., Table 8.1 "
+                  "(fixed-fixed, uniform load; from memory)")
+        verify.check(f"fixed-end forces of a full-span uniform load, beam {e} ({L[e]:.3g} m): wL/2 at "
+                     "each end", source, f[e, [0, 1, 2, 6, 7, 8]], np.tile((pa + pt) * L[e] / 2, 2),
+                     rtol=1e-12, atol=1e-9 * np.abs(p[e]).max(), unit="N")
         # moment of the load about the near end, shared as wL^2/12:
         # +ex x p at i, -ex x p at j.
         m = np.cross(ex, pt) * L[e] ** 2 / 12
-        assert_allclose(f[e, 3:6], m, rtol=1e-12, atol=1e-9 * np.abs(m).max())
-        assert_allclose(f[e, 9:12], -m, rtol=1e-12, atol=1e-9 * np.abs(m).max())
+        verify.check(f"fixed-end moments of a full-span uniform load, beam {e}: +-wL^2/12", source,
+                     f[e, [3, 4, 5, 9, 10, 11]], np.r_[m, -m], rtol=1e-12, atol=1e-9 * np.abs(m).max(),
+                     unit="N m")
     # horizontal beam with gravity load: wL/2 down, +-wL^2/12 about y
-    assert_allclose(f[0, [2, 4, 8, 10]], [-4.5e3 * 3, 4.5e3 * 36 / 12, -4.5e3 * 3, -4.5e3 * 36 / 12],
-                    rtol=1e-12)
+    verify.check("horizontal 6 m beam, 4.5 kN/m down: end shears wL/2 and moments +-wL^2/12", source,
+                 f[0, [2, 4, 8, 10]], [-4.5e3 * 3, 4.5e3 * 36 / 12, -4.5e3 * 3, -4.5e3 * 36 / 12],
+                 rtol=1e-12)
 
 
-@settings(max_examples=30, deadline=None)
+@settings(max_examples=30, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(a=st.floats(0.0, 0.9), frac=st.floats(0.05, 1.0), p=vec3(-5e3, 5e3))
-def test_partial_uniform_load_matches_fixed_end_actions(a, frac, p):
+def test_partial_uniform_load_matches_fixed_end_actions(verify, a, frac, p):
     L = 7.0
     a = a * L
     b = a + frac * (L - a)
@@ -631,15 +673,19 @@ def test_partial_uniform_load_matches_fixed_end_actions(a, frac, p):
     # round-off of a 1 N/m load, not to a subnormal tolerance
     scale = max(np.abs(p).max(), 1.0) * L * (1 + L)
     tol = dict(rtol=0, atol=1e-10 * scale)
-    assert_allclose(fi, [pl[0] * NA, pl[1] * RA, pl[2] * RA], **tol)
-    assert_allclose(fj, [pl[0] * NB, pl[1] * RB, pl[2] * RB], **tol)
+    source = ("Young & Budynas 2002, Roark's Formulas for Stress and Strain, Table 8.1, case 1d "
+              "(from memory), integrated over the patch by scipy.integrate.quad")
+    verify.check("fixed-end forces (both ends) of a partial uniform load on a random patch of a 7 m beam",
+                 source, np.r_[fi, fj], [pl[0] * NA, pl[1] * RA, pl[2] * RA, pl[0] * NB, pl[1] * RB,
+                                         pl[2] * RB], unit="N", **tol)
     # A load along +y turns end i about +z and end j about -z; along +z the
     # reverse about y (theta_y = -dw/dx).
-    assert_allclose(mi, [0.0, -pl[2] * MA, pl[1] * MA], **tol)
-    assert_allclose(mj, [0.0, pl[2] * MB, -pl[1] * MB], **tol)
+    verify.check("fixed-end moments (both ends) of a partial uniform load on a random patch", source,
+                 np.r_[mi, mj], [0.0, -pl[2] * MA, pl[1] * MA, 0.0, pl[2] * MB, -pl[1] * MB],
+                 unit="N m", **tol)
 
 
-def test_patch_from_left_end_closed_form():
+def test_patch_from_left_end_closed_form(verify):
     L, c, w = 6.0, 2.5, -3.0e3
     F0 = beam.local_frames(np.zeros((1, 3)), np.array([[L, 0, 0]]))
     f = beam.equivalent_nodal_loads(np.zeros((1, 3)), np.array([[L, 0, 0]]), F0, [L],
@@ -650,7 +696,9 @@ def test_patch_from_left_end_closed_form():
     MA = w * c**2 * (6 * L**2 - 8 * c * L + 3 * c**2) / (12 * L**2)
     MB = w * c**3 * (4 * L - 3 * c) / (12 * L**2)
     RA = w * c * (2 * L**3 - 2 * c**2 * L + c**3) / (2 * L**3)
-    assert_allclose(f[[2, 4, 8, 10]], [RA, -MA, w * c - RA, MB], rtol=1e-12)
+    verify.check("fixed-fixed 6 m beam, 3 kN/m over 2.5 m from the left end: end shears and moments",
+                 "Young & Budynas 2002, Roark's Formulas for Stress and Strain, Table 8.1 (from memory)",
+                 f[[2, 4, 8, 10]], [RA, -MA, w * c - RA, MB], rtol=1e-12)
     with pytest.raises(ValueError, match="element 0"):
         beam.equivalent_nodal_loads(np.zeros((1, 3)), np.array([[L, 0, 0]]), F0, [L],
                                     np.array([[0, 0, w]]), 3.0, 2.0)

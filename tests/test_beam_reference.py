@@ -124,7 +124,7 @@ def test_shaped_beam_deck_keeps_the_written_rotations(shaped_suspension):
 # the model takes frames, lengths, loads and starting rotations from the table
 # ---------------------------------------------------------------------------
 
-def test_reference_rotation_gives_the_slope_deflection_moments():
+def test_reference_rotation_gives_the_slope_deflection_moments(verify):
     theta = 1e-5
     spec = parse_case(small({"B": {"position": [2000, 0, 0], "rotation": [0, 0, theta]}}))
     model = build_model(spec)
@@ -136,12 +136,18 @@ def test_reference_rotation_gives_the_slope_deflection_moments():
     # from moment equilibrium of the beam, (M_i + M_j) / L, and at j opposes the +y side
     A, B = model.node_index["A"], model.node_index["B"]
     # the corotational kernel differs from the linear relations by O(theta) relative
-    assert_allclose(ev.internal[model.dof[B, 5]], 4 * EI * theta / L, rtol=1e-4)
-    assert_allclose(ev.internal[model.dof[A, 5]], 2 * EI * theta / L, rtol=1e-4)
-    assert_allclose(ev.internal[model.dof[B, 1]], -6 * EI * theta / L**2, rtol=1e-4)
+    source = ("slope-deflection equations, Maney 1915 (e.g. Hibbeler, Structural Analysis, ch. 11; "
+              "from memory)")
+    verify.check("clamped-clamped beam (L = 2 m, EI = 6e5 N m^2), reference rotation 1e-5 rad at B: "
+                 "near-end moment 4EI theta/L", source,
+                 ev.internal[model.dof[B, 5]], 4 * EI * theta / L, rtol=1e-4, unit="N m")
+    verify.check("same beam: far-end moment 2EI theta/L", source,
+                 ev.internal[model.dof[A, 5]], 2 * EI * theta / L, rtol=1e-4, unit="N m")
+    verify.check("same beam: end shear at B, -(M_i + M_j)/L = -6EI theta/L^2", source,
+                 ev.internal[model.dof[B, 1]], -6 * EI * theta / L**2, rtol=1e-4, unit="N")
 
 
-def test_reference_length_and_member_loads_come_from_the_reference_positions():
+def test_reference_length_and_member_loads_come_from_the_reference_positions(verify):
     # [nodes] puts B 2 mm further than its stress-free position, 1 mm up
     spec = parse_case(small({"B": {"position": [1998, 0, -1]}}))
     model = build_model(spec)
@@ -154,11 +160,15 @@ def test_reference_length_and_member_loads_come_from_the_reference_positions():
     # source: Hooke's law for a straight member, N = EA (l - L) / L (small end rotations, so
     # the bending part is tiny: the chord turns by 1e-3/2 rad)
     N = 2.0e11 * 1e-3 * (l - L) / L
-    assert_allclose(np.hypot(*ev.internal[model.dof[B, [0, 2]]]), N, rtol=1e-3)
+    verify.check("beam with a stress-free length 1 mm shorter than its chord (EA = 2e8 N): end force",
+                 "Hooke's law for a straight member, N = EA (l - L)/L (hand calculation)",
+                 np.hypot(*ev.internal[model.dof[B, [0, 2]]]), N, rtol=1e-3, unit="N")
     # the uniform deck load acts on the stress-free length: total 3 N/mm over L
     # source: statics, resultant of a uniform load = intensity x length
     loads = model.load_cases["deck"].nodal
-    assert_allclose(loads[model.dof[:, 2][model.dof[:, 2] >= 0]].sum(), -3000.0 * L, rtol=1e-13)
+    verify.check("uniform load 3 N/mm on a beam of stress-free length L: total nodal load",
+                 "statics: resultant of a uniform load = intensity x length (hand calculation)",
+                 loads[model.dof[:, 2][model.dof[:, 2] >= 0]].sum(), -3000.0 * L, rtol=1e-13, unit="N")
     # starting rotations: identity where the table gives none
     assert_allclose(initial_state(model).rotations, np.broadcast_to(np.eye(3), (3, 3, 3)), atol=0)
 

@@ -91,11 +91,15 @@ def test_simply_supported_girder_under_uniform_load(verify):
         moment = np.array(d["moment"])   # (element, end, [My, Mz]), N m (make_spec units)
         shear = np.array(d["shear"])
         # sagging moment = tension at the bottom (-z) fibres = negative My
-        assert_allclose(moment[n // 2 - 1, 1, 0], -w * L**2 / 8, rtol=rtol, err_msg=name)
-        assert_allclose(moment[n // 2, 0, 0], -w * L**2 / 8, rtol=rtol, err_msg=name)
+        verify.check(f"simply supported girder, uniform load ({name}): midspan moment wL^2/8 "
+                     "(both sides of the midspan node)",
+                     "Roark's Formulas for Stress and Strain, Table 8.1, case 2e (from memory)",
+                     [moment[n // 2 - 1, 1, 0], moment[n // 2, 0, 0]], [-w * L**2 / 8] * 2, rtol=rtol,
+                     unit="N m")
         # the right-hand part pushes the left-hand part down near A
-        assert_allclose(shear[0, 0, 1], -w * L / 2, rtol=rtol, err_msg=name)
-        assert_allclose(shear[-1, 1, 1], w * L / 2, rtol=rtol, err_msg=name)
+        verify.check(f"simply supported girder, uniform load ({name}): end shears wL/2",
+                     "Roark's Formulas for Stress and Strain, Table 8.1, case 2e (from memory)",
+                     [shear[0, 0, 1], shear[-1, 1, 1]], [-w * L / 2, w * L / 2], rtol=rtol, unit="N")
         assert_allclose(moment[:, :, 1], 0.0, atol=1e-9 * w * L**2)
 
 
@@ -124,12 +128,15 @@ def test_cantilever_tip_load(direction, verify):
     # moment vector of the outer part on the inner part: (L e_x) x (-P e_axis)
     expected = np.cross([L, 0, 0], force)
     k = 0 if direction == "z" else 1   # My, or Mz
-    assert_allclose(m[0, 0, k], expected[1 + k], rtol=rtol)
-    assert_allclose(d["nodes"]["A"]["reaction_moment"][1 + k], -expected[1 + k], rtol=rtol)
-    assert_allclose(d["nodes"]["A"]["reaction"][axis], P, rtol=1e-9)
+    verify.check(f"cantilever, tip load along {direction}: fixed-end moment PL (member end and "
+                 "support reaction)", "Roark's Formulas for Stress and Strain, Table 8.1, case 1a "
+                 "(from memory)", [m[0, 0, k], d["nodes"]["A"]["reaction_moment"][1 + k]],
+                 [expected[1 + k], -expected[1 + k]], rtol=rtol, unit="N m")
+    verify.check(f"cantilever, tip load along {direction}: support reaction P", "statics of the "
+                 "whole cantilever", d["nodes"]["A"]["reaction"][axis], P, rtol=1e-9, unit="N")
 
 
-def test_stayed_cantilever_hand_calculation():
+def test_stayed_cantilever_hand_calculation(verify):
     # source: hand calculation (compatibility, flexibility method), derived
     # here.  Beam A -> B along x, clamped at A, length L; a bar stay from the
     # tip B to C = (0, 0, h) above the clamp, pinned there; load P down at B.
@@ -163,16 +170,21 @@ def test_stayed_cantilever_hand_calculation():
                   loads=[NodalLoad("P", "B", (0.0, 0.0, -P))], materials=MATS,
                   sections=dict(SECS, big=big), analysis=TIGHT)
     res = solve(s)
-    assert_allclose(res.tension("P", "S"), [T, T], rtol=5e-5)
-    assert_allclose(res.node_displacement("P", "B")[2], -v, rtol=5e-5)
-    assert_allclose(res.tension("P", "G"), [-T * ca, -T * ca], rtol=5e-5)
+    source = ("hand calculation, flexibility method with the cantilever tip deflection PL^3/3EI of "
+              "Roark's Formulas for Stress and Strain, Table 8.1, case 1a (from memory); root by brentq")
+    verify.check("cantilever 4 m propped by a bar stay to 3 m above the clamp, 1 kN at the tip: stay tension",
+                 source, res.tension("P", "S"), [T, T], rtol=5e-5, unit="N")
+    verify.check("same stayed cantilever: tip deflection", source,
+                 res.node_displacement("P", "B")[2], -v, rtol=5e-5, unit="m")
+    verify.check("same stayed cantilever: beam axial compression T cos(a)", source,
+                 res.tension("P", "G"), [-T * ca, -T * ca], rtol=5e-5, unit="N")
 
 
 # ---------------------------------------------------------------------------
 # large rotations through the full solver
 # ---------------------------------------------------------------------------
 
-def test_end_moment_bends_cantilever_into_circle_beyond_quarter_turn():
+def test_end_moment_bends_cantilever_into_circle_beyond_quarter_turn(verify):
     # source: pure bending of an elastic beam: constant curvature M / (E I),
     # a circular arc of radius R = E I / M (exact; Euler-Bernoulli).
     # Discretization: under a pure moment each corotated element carries no
@@ -194,13 +206,20 @@ def test_end_moment_bends_cantilever_into_circle_beyond_quarter_turn():
     # moment about -y curls the beam upwards, centre of the circle at (0, 0, R)
     exact = np.stack([R * np.sin(s_arc / R), 0 * s_arc, R * (1 - np.cos(s_arc / R))], axis=1)
     t = phi / n
-    assert_allclose(pos, exact, rtol=0, atol=2 * t**2 / 24 * R * phi)
-    assert_allclose(np.linalg.norm(pos - [0, 0, R], axis=1), R, rtol=2 * t**2 / 24)
+    source = "pure bending, Euler-Bernoulli M = EI/R: a circular arc (exact)"
+    verify.check("cantilever 5 m (16 beams) bent by an end moment until the tip turns 2 rad: node "
+                 "positions on the arc (chord error t^2/24)", source, pos, exact, rtol=0,
+                 atol=2 * t**2 / 24 * R * phi, unit="m")
+    verify.check("same cantilever: distance of the nodes from the centre of the arc", source,
+                 np.linalg.norm(pos - [0, 0, R], axis=1), R, rtol=2 * t**2 / 24, unit="m")
     rot = res.as_dict()["results"]["m"]["nodes"]["B"]["rotation"]
-    assert_allclose(rot, [0.0, -phi, 0.0], atol=1e-8)
+    verify.check("same cantilever: tip rotation ML/EI", source, rot, [0.0, -phi, 0.0], atol=1e-8,
+                 unit="rad")
     # constant moment along the member, My = -M at every element end
-    assert_allclose(np.array(res.as_dict()["results"]["m"]["members"]["G"]["moment"])[:, :, 0],
-                    -M, rtol=1e-8)
+    verify.check("same cantilever: bending moment -M at every element end", "statics of the free "
+                 "body beyond the section",
+                 np.array(res.as_dict()["results"]["m"]["members"]["G"]["moment"])[:, :, 0],
+                 -M, rtol=1e-8, unit="N m")
 
 
 def elastica_tip(k2, L=1.0):
@@ -243,7 +262,7 @@ def test_elastica_of_cantilever_under_tip_load(verify):
                  fe, ref, atol=1e-4)
 
 
-def test_elastica_converges_at_second_order():
+def test_elastica_converges_at_second_order(verify):
     # source: the corotational element with a linear (cubic Hermite) local
     # beam converges at order 2 in the element length (Crisfield 1997,
     # Non-linear Finite Element Analysis of Solids and Structures, vol. 2,
@@ -254,7 +273,10 @@ def test_elastica_converges_at_second_order():
     err = np.array([np.linalg.norm(cantilever_tip_fe(n, 3.0) - ref) for n in ns])
     rate = -np.polyfit(np.log(ns), np.log(err), 1)[0]
     # pre-asymptotic coarse meshes: allow 0.15 either side of the theory
-    assert_allclose(rate, 2.0, atol=0.15)
+    verify.check("elastica of a cantilever, PL^2/EI = 3, 2/4/8/16 elements: order of the tip error",
+                 "Crisfield 1997, Non-linear Finite Element Analysis of Solids and Structures, vol. 2, "
+                 "ch. 17 (from memory); reference elastica Bisshopp & Drucker 1945 by scipy solve_bvp",
+                 rate, 2.0, atol=0.15)
 
 
 def test_euler_load_of_pinned_column_from_assembled_tangent(verify):
@@ -390,7 +412,7 @@ def check_invariance(s0, s1, Q):
 # wiring: supports, temperature, prescribed rotation, up, outputs
 # ---------------------------------------------------------------------------
 
-def test_clamped_girder_under_temperature_takes_axial_force():
+def test_clamped_girder_under_temperature_takes_axial_force(verify):
     # source: a fully restrained member under a uniform temperature change
     # keeps its length L while its stress-free length becomes L (1 + a dT):
     # N = EA (L - L (1 + a dT)) / (L (1 + a dT)) (the axial law of the
@@ -400,11 +422,13 @@ def test_clamped_girder_under_temperature_takes_axial_force():
              {"A": FIXED, "B": FIXED}, [TemperatureLoad("hot", ("G",), dT)])
     res = solve(s)
     strain = 1.2e-5 * dT
-    assert_allclose(res.tension("hot", "G"), [-E * A * strain / (1 + strain)] * 2, rtol=1e-8)
+    verify.check("girder clamped at both ends, heated by 25 K: axial force EA (L - Ls)/Ls",
+                 "elementary restrained thermal bar (common practice; exact)",
+                 res.tension("hot", "G"), [-E * A * strain / (1 + strain)] * 2, rtol=1e-8, unit="N")
     assert_allclose(res.displacements("hot"), 0.0, atol=1e-12)
 
 
-def test_prescribed_support_rotation_of_propped_cantilever():
+def test_prescribed_support_rotation_of_propped_cantilever(verify):
     # source: slope-deflection with the far end pinned: turning the clamped
     # end by theta takes the moment 3 E I theta / L and the prop reaction
     # 3 E I theta / L^2 (any structural analysis text; from memory).  About
@@ -420,12 +444,16 @@ def test_prescribed_support_rotation_of_propped_cantilever():
     res = solve(s)
     d = res.as_dict()["results"]["turn"]["nodes"]
     # the clamp's moment on the girder acts in the sense of the imposed turn
-    assert_allclose(d["A"]["reaction_moment"][1:], 3 * E * np.array([IY, IZ]) * theta[1:] / L, rtol=1e-5)
-    assert_allclose(np.array(d["B"]["reaction"])[1:], 3 * E * np.array([-IZ * theta[2], IY * theta[1]]) / L**2,
-                    rtol=1e-5)
+    source = "slope-deflection with the far end pinned (any structural analysis text; from memory)"
+    verify.check("propped cantilever 3 m, clamp turned by (2e-4, -3e-4) rad about y and z: clamp "
+                 "moments 3EI theta/L", source, d["A"]["reaction_moment"][1:],
+                 3 * E * np.array([IY, IZ]) * theta[1:] / L, rtol=1e-5, unit="N m")
+    verify.check("same propped cantilever: prop reactions 3EI theta/L^2", source,
+                 np.array(d["B"]["reaction"])[1:], 3 * E * np.array([-IZ * theta[2], IY * theta[1]]) / L**2,
+                 rtol=1e-5, unit="N")
 
 
-def test_prescribed_rotation_steps_compose_to_the_rotation_vector():
+def test_prescribed_rotation_steps_compose_to_the_rotation_vector(verify):
     # source: rotations about one fixed axis commute (Rodrigues; exact), so
     # stepping a prescribed rotation vector in increments ends exactly at
     # expm(theta) whatever the steps; reference rotation from scipy.
@@ -438,8 +466,10 @@ def test_prescribed_rotation_steps_compose_to_the_rotation_vector():
     lams = [0.0, 0.1, 0.35, 0.4, 0.8, 1.0]
     for a, b in zip(lams[:-1], lams[1:]):
         state = prob.impose(state, a, b)
-    assert_allclose(state.rotations[model.node_index["A"]], Rotation.from_rotvec(theta).as_matrix(),
-                    atol=1e-14)
+    verify.check("prescribed support rotation vector (0.9, -1.3, 0.4) rad applied in five uneven steps: "
+                 "final rotation matrix", "Rodrigues' formula (rotations about one axis commute); "
+                 "scipy.spatial.transform.Rotation.from_rotvec",
+                 state.rotations[model.node_index["A"]], Rotation.from_rotvec(theta).as_matrix(), atol=1e-14)
 
 
 def test_up_parallel_to_member_names_the_member():

@@ -709,19 +709,24 @@ def si(text, unit):
     return registry().Quantity(text).to(unit).magnitude
 
 
-def test_interface_example_in_si(tmp_path):
+def test_interface_example_in_si(tmp_path, verify):
     spec = read_case(write(tmp_path, EXAMPLE))
     strand, steel = spec.materials["strand"], spec.materials["steel"]
     # source: pint unit definitions (SI prefixes per BIPM 2019, The International System of Units, 9th ed., Table 7)
-    assert_allclose(strand.E, si("160 GPa", "Pa"), rtol=RTOL_UNITS)
+    verify.check('example case: E = "160 GPa" read in Pa', "pint unit definitions (SI prefixes per BIPM "
+                 "2019, The International System of Units, 9th ed., Table 7)", strand.E, si("160 GPa", "Pa"),
+                 rtol=RTOL_UNITS, unit="Pa")
     assert_allclose(strand.E, 160e9, rtol=RTOL_UNITS)
     assert_allclose(strand.G, strand.E / 2.6, rtol=RTOL_UNITS)  # default of the interface page
-    assert_allclose(strand.unit_weight, si("78.5 kN/m^3", "N/m^3"), rtol=RTOL_UNITS)
+    verify.check('example case: unit_weight = "78.5 kN/m^3" read in N/m^3', "pint unit definitions",
+                 strand.unit_weight, si("78.5 kN/m^3", "N/m^3"), rtol=RTOL_UNITS, unit="N/m^3")
     assert_allclose(steel.E, 210e9, rtol=RTOL_UNITS)            # bare number: kN/m^2
     # source: 3rd CGPM 1901, standard acceleration of gravity g_n = 9.80665 m/s^2
     # (scipy.constants.g holds the same conventional value)
-    assert_allclose(steel.unit_weight, 8000 * const.g, rtol=RTOL_UNITS)
-    assert_allclose(steel.unit_weight, si("8000 kg/m^3 * g_0", "N/m^3"), rtol=RTOL_UNITS)
+    verify.check("example case: density 8000 kg/m^3 turned into a unit weight with standard gravity",
+                 "3rd CGPM 1901, g_n = 9.80665 m/s^2 (scipy.constants.g; pint g_0)",
+                 [steel.unit_weight] * 2, [8000 * const.g, si("8000 kg/m^3 * g_0", "N/m^3")],
+                 rtol=RTOL_UNITS, unit="N/m^3")
     assert_allclose(steel.alpha, 1.2e-5, rtol=RTOL_UNITS)
     main, deck = spec.sections["main"], spec.sections["deck"]
     assert_allclose(main.area, 1960e-6, rtol=RTOL_UNITS)
@@ -836,12 +841,15 @@ def test_match_members_takes_ids_and_patterns():
 # units module against outside references
 # ---------------------------------------------------------------------------
 
-def test_unit_system_scales_against_scipy_constants():
+def test_unit_system_scales_against_scipy_constants(verify):
     # source: scipy.constants (NIST SP 811, 2008, Appendix B: foot, inch, pound-force, kilogram-force)
     us = unit_system({"length": "ft", "force": "lbf"})
-    assert_allclose([us.length_scale, us.force_scale], [const.foot, const.pound_force], rtol=RTOL_UNITS)
+    source = "scipy.constants (NIST SP 811, 2008, Appendix B)"
+    verify.check("[units] ft and lbf: length and force scales to m and N", source,
+                 [us.length_scale, us.force_scale], [const.foot, const.pound_force], rtol=RTOL_UNITS)
     us = unit_system({"length": "in", "force": "kgf"})
-    assert_allclose([us.length_scale, us.force_scale], [const.inch, const.kgf], rtol=RTOL_UNITS)
+    verify.check("[units] in and kgf: length and force scales to m and N", source,
+                 [us.length_scale, us.force_scale], [const.inch, const.kgf], rtol=RTOL_UNITS)
     assert unit_system(None) == UnitSystem("m", "kN", 1.0, 1000.0)
 
 
@@ -860,11 +868,15 @@ def test_bare_numbers_of_derived_kinds_follow_the_file_units():
     assert q.to_si(7850, "density", "k") == 7850.0
 
 
-def test_temperature_differences_in_other_scales():
+def test_temperature_differences_in_other_scales(verify):
     q = Quantities(UnitSystem())
     # source: NIST SP 811 (2008), B.9: a Fahrenheit interval is 5/9 K
-    assert_allclose(q.to_si("-45 delta_degF", "temperature_difference", "k"), -25.0, rtol=RTOL_UNITS)
-    assert_allclose(q.to_si("6.5e-6 1/delta_degF", "thermal_expansion", "k"), 6.5e-6 * 9 / 5, rtol=RTOL_UNITS)
+    verify.check("temperature difference -45 delta_degF in K", "NIST SP 811 (2008), B.9 (a Fahrenheit "
+                 "interval is 5/9 K)", q.to_si("-45 delta_degF", "temperature_difference", "k"), -25.0,
+                 rtol=RTOL_UNITS, unit="K")
+    verify.check("thermal expansion 6.5e-6 per delta_degF in 1/K", "NIST SP 811 (2008), B.9",
+                 q.to_si("6.5e-6 1/delta_degF", "thermal_expansion", "k"), 6.5e-6 * 9 / 5, rtol=RTOL_UNITS,
+                 unit="1/K")
     assert_allclose(q.to_si("30 deg", "angle", "k"), math.pi / 6, rtol=RTOL_UNITS)
     assert_allclose(q.to_si("5 %", "dimensionless", "k"), 0.05, rtol=RTOL_UNITS)
     assert_allclose(q.to_si("1.2e-5/K", "thermal_expansion", "k"), 1.2e-5, rtol=RTOL_UNITS)

@@ -4,13 +4,15 @@ import logging
 import mpmath as mp
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import HealthCheck, given, settings, strategies as st
 from numpy.testing import assert_allclose
 
 from cablefe.elements import catenary as cat
 
 EPS = np.finfo(float).eps
 mp.mp.dps = 40
+# the verify fixture only records, so one instance may serve every example
+SHARED_FIXTURE = [HealthCheck.function_scoped_fixture]
 
 
 # ---------------------------------------------------------------------------
@@ -87,20 +89,22 @@ FORWARD_CASES = [
 
 
 @pytest.mark.parametrize("H, V, L0, w, EA", FORWARD_CASES)
-def test_forward_map_matches_irvine_equations(H, V, L0, w, EA):
+def test_forward_map_matches_irvine_equations(verify, H, V, L0, w, EA):
     # source: Irvine 1981, Cable Structures, §1.3 (chord equations), at 40 digits
     l, h = cat.catenary_chord([H], [V], [L0], [w], [EA])
     l_ref, h_ref = (float(x) for x in irvine_chord_mp(H, V, L0, w, EA))
     # l is a sum of positive terms: a few tens of roundings at most (1e-14 ~ 45 eps);
     # h can be a small difference of the two halves of the cable, so its error
     # is relative to L0, not to h
-    assert_allclose(l, l_ref, rtol=1e-14)
-    assert_allclose(h, h_ref, rtol=1e-14, atol=1e-14 * L0)
+    problem = f"elastic catenary H = {H:g} N, V = {V:g} N, L0 = {L0:g} m, w = {w:g} N/m, EA = {EA:g} N"
+    verify.check(problem + ": horizontal chord l", "Irvine 1981, Cable Structures, §1.3 (chord equations), evaluated by mpmath at 40 digits", l, l_ref, rtol=1e-14, unit="m")
+    verify.check(problem + ": vertical chord h", "Irvine 1981, Cable Structures, §1.3 (chord equations), evaluated by mpmath at 40 digits", h, h_ref, rtol=1e-14, atol=1e-14 * L0,
+                 unit="m")
 
 
-@settings(max_examples=40, deadline=None)
+@settings(max_examples=40, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(st.floats(-4.0, 3.0), st.floats(-70.0, 70.0), st.floats(0.0, 3.0), st.floats(-5.0, -2.0))
-def test_forward_map_matches_irvine_equations_everywhere(log_sag, angle, log_L0, log_strain):
+def test_forward_map_matches_irvine_equations_everywhere(verify, log_sag, angle, log_L0, log_strain):
     # source: Irvine 1981, Cable Structures, §1.3 (chord equations), at 40 digits
     L0, w = 10.0**log_L0, 25.0
     W = w * L0
@@ -111,12 +115,14 @@ def test_forward_map_matches_irvine_equations_everywhere(log_sag, angle, log_L0,
     l_ref, h_ref = (float(x) for x in irvine_chord_mp(H, V, L0, w, EA))
     # the reference is exact to double precision; the asinh sums may amplify
     # the rounding of V - W by the slope, still within 1e-13 of the length
-    assert_allclose(l, l_ref, rtol=1e-13)
-    assert_allclose(h, h_ref, rtol=1e-13, atol=1e-13 * L0)
+    verify.check("elastic catenary, random sag (W/H 1e-3 to 1e4), slope, length and strain: horizontal "
+                 "chord l", "Irvine 1981, Cable Structures, §1.3 (chord equations), evaluated by mpmath at 40 digits", l, l_ref, rtol=1e-13, unit="m")
+    verify.check("elastic catenary, random sag, slope, length and strain: vertical chord h",
+                 "Irvine 1981, Cable Structures, §1.3 (chord equations), evaluated by mpmath at 40 digits", h, h_ref, rtol=1e-13, atol=1e-13 * L0, unit="m")
 
 
 @pytest.mark.parametrize("H, V, L0, w, EA", FORWARD_CASES)
-def test_flexibility_is_derivative_of_irvine_equations(H, V, L0, w, EA):
+def test_flexibility_is_derivative_of_irvine_equations(verify, H, V, L0, w, EA):
     # source: Irvine 1981, Cable Structures, §1.3, differentiated by mpmath at 40 digits
     F = cat.catenary_flexibility([H], [V], [L0], [w], [EA])[0]
     m = [mp.mpf(x) for x in (H, V, L0, w, EA)]
@@ -124,7 +130,10 @@ def test_flexibility_is_derivative_of_irvine_equations(H, V, L0, w, EA):
                        float(mp.diff(lambda x: irvine_chord_mp(m[0], x, *m[2:])[i], m[1]))] for i in (0, 1)])
     # the analytic entries are sums of accurate terms; 1e-12 leaves room for the
     # few cases where a term is a difference of two (log1p and atan2 forms)
-    assert_allclose(F, F_ref, rtol=1e-12, atol=1e-13 * np.abs(F_ref).max())
+    verify.check(f"elastic catenary H = {H:g} N, V = {V:g} N, L0 = {L0:g} m, w = {w:g} N/m, EA = {EA:g} N: "
+                 "flexibility d(l, h)/d(H, V)", "Irvine 1981, Cable Structures, §1.3, differentiated "
+                 "by mpmath.diff at 40 digits", F, F_ref, rtol=1e-12, atol=1e-13 * np.abs(F_ref).max(),
+                 unit="m/N")
     assert_allclose(F[0, 1], F[1, 0], rtol=0, atol=0)   # complementary energy: symmetric
 
 
@@ -154,9 +163,9 @@ element = st.tuples(
 )
 
 
-@settings(max_examples=60, deadline=None)
+@settings(max_examples=60, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(st.lists(element, min_size=1, max_size=8))
-def test_inverse_recovers_end_forces(elements):
+def test_inverse_recovers_end_forces(verify, elements):
     # source: Irvine 1981, Cable Structures, §1.3: (l, h) from the chord
     # equations at 40 digits, then solved back for (H, V) in one batch
     H, V, L0, w, EA, l, h = ([] for _ in range(7))
@@ -175,9 +184,13 @@ def test_inverse_recovers_end_forces(elements):
     assert converged.all()
     # (l, h) carry rounding of 1 ulp; the inverse amplifies it by at most about
     # 1/strain <= 1e4 (taut cables), so 1e-9 keeps a 1e3 margin
-    assert_allclose(Hs, H, rtol=1e-9)
+    source = ("Irvine 1981, Cable Structures, §1.3: chord (l, h) of known end forces by mpmath at 40 "
+              "digits, solved back for (H, V)")
+    verify.check("batches of random catenaries, taut to very slack, some weightless: horizontal force H "
+                 "from the chord", source, Hs, H, rtol=1e-9, unit="N")
     force_scale = np.maximum(H, w * L0)     # V may pass through zero
-    assert_allclose(Vs / force_scale, V / force_scale, rtol=1e-9, atol=1e-9)
+    verify.check("same catenaries: vertical end force V / max(H, W) from the chord", source,
+                 Vs / force_scale, V / force_scale, rtol=1e-9, atol=1e-9)
 
 
 def test_cold_start_converges_for_extreme_chords():
@@ -233,7 +246,7 @@ def test_warm_start_reaches_the_cold_solution():
 
 @pytest.mark.parametrize("H, V, w", [(800.0, 300.0, 12.0), (800.0, 2400.0, 12.0), (50.0, 900.0, 20.0),
                                      (800.0, -150.0, 12.0)])
-def test_single_element_forces(H, V, w):
+def test_single_element_forces(verify, H, V, w):
     # source: Irvine 1981, Cable Structures, §1.3: the element placed on the
     # chord of known end forces must return them
     L0, EA, azimuth = 100.0, 4.0e8, 2.2
@@ -246,18 +259,23 @@ def test_single_element_forces(H, V, w):
     expected = np.concatenate([-H * e_h + (W - V) * e_z, H * e_h + V * e_z])
     # (l, h) are rounded to 1 ulp; the inverse amplifies that by about the
     # condition number of the flexibility (< 1e4 here)
-    assert_allclose(r.force[0], expected, rtol=1e-9, atol=1e-9 * np.hypot(H, V))
+    problem = f"catenary element placed on the chord of H = {H:g} N, V = {V:g} N, w = {w:g} N/m"
+    source = "Irvine 1981, Cable Structures, §1.3 (chord equations by mpmath at 40 digits)"
+    verify.check(problem + ": end forces", source, r.force[0], expected, rtol=1e-9,
+                 atol=1e-9 * np.hypot(H, V), unit="N")
     # the supports together carry the weight
-    assert_allclose(r.force[0, :3] + r.force[0, 3:], [0.0, 0.0, W], rtol=1e-14, atol=1e-14 * W)
+    verify.check(problem + ": the two end forces carry the weight W", "statics of the whole cable",
+                 r.force[0, :3] + r.force[0, 3:], [0.0, 0.0, W], rtol=1e-14, atol=1e-14 * W, unit="N")
     T_i, T_j = np.hypot(H, V - W), np.hypot(H, V)
-    assert_allclose(r.end_tension[0], [T_i, T_j], rtol=1e-9)
-    assert_allclose(r.max_tension, max(T_i, T_j), rtol=1e-9)
     # the tension is least at the vertex when it lies inside the span
-    assert_allclose(r.min_tension, H if V - W < 0 < V else min(T_i, T_j), rtol=1e-9)
+    verify.check(problem + ": end tensions, largest and least tension (H at a vertex inside the span)",
+                 source + "; T = sqrt(H^2 + v^2)",
+                 [*r.end_tension[0], r.max_tension[0], r.min_tension[0]],
+                 [T_i, T_j, max(T_i, T_j), H if V - W < 0 < V else min(T_i, T_j)], rtol=1e-9, unit="N")
     assert not r.slack[0] and r.converged[0]
 
 
-def test_weightless_element_is_the_straight_tie():
+def test_weightless_element_is_the_straight_tie(verify):
     # source: N = EA (L - L0)/L0 for a weightless tie (docs/case-format.md, member types)
     xi = np.array([[0.0, 0.0, 0.0], [1.0, 1.0, 1.0]])
     xj = np.array([[3.0, 4.0, 12.0], [4.0, 5.0, 13.0]])       # chord 13
@@ -265,11 +283,15 @@ def test_weightless_element_is_the_straight_tie():
     r = cat.response(xi, xj, L0, EA, [0.0, 0.0])
     N = EA[0] * (13.0 - 12.9) / 12.9
     e = np.array([3.0, 4.0, 12.0]) / 13.0
-    assert_allclose(r.force[0], np.concatenate([-N * e, N * e]), rtol=1e-13)
-    assert_allclose(r.end_tension[0], [N, N], rtol=1e-13)
+    source = "N = EA (L - L0)/L0 for a weightless tie along its chord (hand calculation)"
+    verify.check("weightless cable on a 3-4-12 chord of 13 m, L0 = 12.9 m: end forces N e", source,
+                 r.force[0], np.concatenate([-N * e, N * e]), rtol=1e-13, unit="N")
+    verify.check("same tie: end tensions", source, r.end_tension[0], [N, N], rtol=1e-13, unit="N")
     k = EA[0] / L0[0] * np.outer(e, e) + N / 13.0 * (np.eye(3) - np.outer(e, e))
-    assert_allclose(r.tangent[0, 3:, 3:], k, rtol=1e-12, atol=1e-12 * EA[0] / L0[0])
-    assert_allclose(r.tangent[0, :3, 3:], -k, rtol=1e-12, atol=1e-12 * EA[0] / L0[0])
+    verify.check("same tie: tangent EA/L0 e e^T + N/L (I - e e^T) (blocks j-j and i-j)",
+                 "stiffness of a prestressed straight tie, elastic plus geometric part (hand calculation)",
+                 [r.tangent[0, 3:, 3:], r.tangent[0, :3, 3:]], [k, -k], rtol=1e-12,
+                 atol=1e-12 * EA[0] / L0[0], unit="N/m")
     # slack: chord shorter than L0 carries nothing and has no stiffness
     assert r.slack[1] and not r.slack[0]
     assert np.all(r.force[1] == 0.0) and np.all(r.tangent[1] == 0.0)
@@ -348,7 +370,7 @@ def test_tangent_is_derivative_of_internal_force(states):
 # vertical chords
 # ---------------------------------------------------------------------------
 
-def test_vertical_hanging_cable_statics_and_isotropic_stiffness():
+def test_vertical_hanging_cable_statics_and_isotropic_stiffness(verify):
     # source: statics of a cable hanging from node j with Hooke's law per
     # element ds: stretched length L0 + L0 (V - W/2)/EA must equal the chord
     L0, EA, w = 50.0, 1.0e7, 20.0
@@ -357,14 +379,18 @@ def test_vertical_hanging_cable_statics_and_isotropic_stiffness():
     xi, xj = place(0.0, h, 0.0)
     r = cat.response(xi, xj, [L0], [EA], [w])
     V = 0.5 * W + EA * (h - L0) / L0
-    assert_allclose(r.force[0], [0, 0, W - V, 0, 0, V], rtol=1e-13, atol=1e-13 * V)
-    assert_allclose(r.end_tension[0], [V - W, V], rtol=1e-13)
+    source = "statics of a hanging cable with Hooke's law per element ds (hand calculation)"
+    verify.check("cable hanging straight down, L0 = 50 m, w = 20 N/m, chord 50.2 m: end forces", source,
+                 r.force[0], [0, 0, W - V, 0, 0, V], rtol=1e-13, atol=1e-13 * V, unit="N")
+    verify.check("same cable: end tensions", source, r.end_tension[0], [V - W, V], rtol=1e-13, unit="N")
     assert not r.slack[0]
     # horizontal stiffness: H/l -> 1/(dl/dH) with dl/dH = int (1/EA + 1/T) ds,
     # the limit of Irvine's flexibility at H = 0 (about T/L for a taut cable)
     k_h = 1.0 / (L0 / EA + L0 / W * np.log(V / (V - W)))
     K = r.tangent[0, 3:, 3:]
-    assert_allclose(np.diag(K), [k_h, k_h, EA / L0], rtol=1e-12)
+    verify.check("same cable: horizontal and vertical stiffness 1/int(1/EA + 1/T) ds and EA/L0",
+                 "Irvine 1981, Cable Structures, §1.3 (flexibility in the limit H = 0; hand calculation)",
+                 np.diag(K), [k_h, k_h, EA / L0], rtol=1e-12, unit="N/m")
     assert_allclose(K - np.diag(np.diag(K)), 0.0, atol=1e-12 * EA / L0)
     # a chord a hair off vertical is the same element: no division by zero, no jump
     xi2, xj2 = place(1e-6 * h, h, 0.7)
@@ -374,7 +400,7 @@ def test_vertical_hanging_cable_statics_and_isotropic_stiffness():
     assert_allclose(r2.force, r.force, rtol=0, atol=1e-6 * V)
 
 
-def test_vertical_folded_cable():
+def test_vertical_folded_cable(verify):
     # source: statics of a cable folded on itself below two points on one
     # vertical: zero tension at the fold, the two legs carry their own weight,
     # leg lengths (1 + T/EA)-stretched add up to the cable and differ by h
@@ -384,23 +410,28 @@ def test_vertical_folded_cable():
     xi, xj = place(0.0, h, 0.0)
     r = cat.response(xi, xj, [L0], [EA], [w])
     V = 0.5 * W + h / (L0 / EA + 2.0 * L0 / W)
-    assert_allclose(r.force[0], [0, 0, W - V, 0, 0, V], rtol=1e-13)
+    source = ("statics of a cable folded on itself: zero tension at the fold, legs stretched by "
+              "(1 + T/EA) (hand calculation)")
+    verify.check("cable 50 m folded below two points 20 m apart on one vertical: end forces", source,
+                 r.force[0], [0, 0, W - V, 0, 0, V], rtol=1e-13, unit="N")
     assert r.slack[0] and r.converged[0]
     assert_allclose(r.min_tension, 0.0, atol=0)
     K = r.tangent[0, 3:, 3:]
     assert np.all(np.isfinite(r.tangent))
     # no horizontal stiffness at the fold; vertical: dh/dV = L0/EA + 2 L0/W
-    assert_allclose(K, np.diag([0.0, 0.0, 1.0 / (L0 / EA + 2.0 * L0 / W)]), rtol=1e-12, atol=0)
+    verify.check("same fold: stiffness, none horizontal, vertical 1/(L0/EA + 2 L0/W)", source,
+                 K, np.diag([0.0, 0.0, 1.0 / (L0 / EA + 2.0 * L0 / W)]), rtol=1e-12, atol=0, unit="N/m")
     # the inextensible fold: legs (L0 +- h)/2 give V = w (L0 + h)/2
     r_stiff = cat.response(xi, xj, [L0], [1e15], [w])
-    assert_allclose(r_stiff.V, 0.5 * w * (L0 + h), rtol=1e-12)
+    verify.check("same fold, nearly inextensible (EA = 1e15 N): upper end force w (L0 + h)/2", source,
+                 r_stiff.V, 0.5 * w * (L0 + h), rtol=1e-12, unit="N")
 
 
 # ---------------------------------------------------------------------------
 # limits from the literature
 # ---------------------------------------------------------------------------
 
-def test_chord_stiffness_approaches_ernst_equivalent_modulus():
+def test_chord_stiffness_approaches_ernst_equivalent_modulus(verify):
     # source: Ernst 1965, Der Bauingenieur 40 (from memory):
     #   E_eq = E / [1 + (gamma l)^2 E / (12 sigma^3)],
     # gamma = weight per volume, l = horizontal projection, sigma = stress.
@@ -436,7 +467,12 @@ def test_chord_stiffness_approaches_ernst_equivalent_modulus():
     # off as (W/T)^2: fit the rate on log-log data
     rate = np.polyfit(np.log(1.0 / tautness), np.log(deviation), 1)[0]
     assert 1.8 < rate < 2.2
-    assert deviation[-1] < 1e-6
+    verify.check("inclined catenary (30 degrees) with E_eq = E/2: order in W/T of the chord stiffness "
+                 "difference from Ernst's modulus", "Ernst 1965, Der Bauingenieur 40 (from memory)",
+                 rate, 2.0, atol=0.2)
+    # the loop's last pass: the tautest cable, T = 1000 W
+    verify.check("same cable, T = 1000 W: chord stiffness vs Ernst's equivalent modulus E_eq A / chord",
+                 "Ernst 1965, Der Bauingenieur 40 (from memory)", k_chord, ernst, rtol=1e-6, unit="N/m")
 
 
 def test_shallow_level_cable_parabolic_limit(verify):
@@ -455,7 +491,9 @@ def test_shallow_level_cable_parabolic_limit(verify):
         # the load per horizontal length of the parabola is W / span
         H_parabola = (W / span) * span**2 / (8.0 * sag)
         h_dev.append(abs(r.H[0] / H_parabola - 1.0))
-        assert_allclose(r.end_tension[0], np.hypot(r.H[0], 0.5 * W), rtol=1e-12)
+        verify.check("shallow level catenary, span 100 m, d/L 0.1 to 0.005: support tension sqrt(H^2 + (W/2)^2)",
+                     "statics of a symmetric level cable (common practice)",
+                     r.end_tension[0], np.hypot(r.H[0], 0.5 * W), rtol=1e-12, unit="N")
         S = cat.stretched_length(r.H, r.V, [L0], [w], [EA])[0]
         d = sag / span
         s_dev.append(abs(S / (span * (1.0 + 8.0 / 3.0 * d**2 - 32.0 / 5.0 * d**4)) - 1.0))
@@ -468,7 +506,10 @@ def test_shallow_level_cable_parabolic_limit(verify):
     verify.check("shallow level catenary vs parabola: order of the length difference in d/L",
                  "Irvine 1981, Cable Structures, ch. 2 (S = L[1 + 8/3 (d/L)^2 - 32/5 (d/L)^4])",
                  rate_S, 4.0, atol=0.2)
-    assert h_dev[-1] < 1e-4
+    # the loop's last pass: d/L = 0.005
+    verify.check("shallow level catenary, d/L = 0.005: thrust vs the parabola's wL^2/8d",
+                 "Irvine 1981, Cable Structures, ch. 2 (H = wL^2/8d; common practice)",
+                 r.H[0], H_parabola, rtol=1e-4, unit="N")
 
 
 # ---------------------------------------------------------------------------
@@ -476,7 +517,7 @@ def test_shallow_level_cable_parabolic_limit(verify):
 # ---------------------------------------------------------------------------
 
 @pytest.mark.parametrize("H, V, w", [(800.0, 300.0, 12.0), (50.0, 900.0, 20.0), (3.0e4, 2.0e4, 12.0)])
-def test_shape_points_lie_on_irvine_profile(H, V, w):
+def test_shape_points_lie_on_irvine_profile(verify, H, V, w):
     # source: Irvine 1981, Cable Structures, §1.3, profile x(s), z(s) (from memory)
     L0, EA, azimuth = 100.0, 4.0e8, -0.8
     l, h = (float(x) for x in irvine_chord_mp(H, V, L0, w, EA))
@@ -487,11 +528,13 @@ def test_shape_points_lie_on_irvine_profile(H, V, w):
     e_h = np.array([np.cos(azimuth), np.sin(azimuth), 0.0])
     expected = xi + ref[:, :1] * e_h + ref[:, 1:] * np.array([0.0, 0.0, 1.0])
     # cancellation-free forms: a few ulp of the length
-    assert_allclose(pts, expected, rtol=0, atol=1e-13 * L0)
+    verify.check(f"catenary H = {H:g} N, V = {V:g} N, w = {w:g} N/m, L0 = 100 m: 11 points of the drawn "
+                 "profile", "Irvine 1981, Cable Structures, §1.3, profile x(s), z(s) (from memory), by "
+                 "mpmath", pts, expected, rtol=0, atol=1e-13 * L0, unit="m")
     assert_allclose(pts[-1], xj[0], rtol=0, atol=1e-13 * L0)
 
 
-def test_divided_cable_matches_the_single_element():
+def test_divided_cable_matches_the_single_element(verify):
     # source: Irvine 1981, Cable Structures, §1.3: n elements with nodes on the
     # exact profile at equal unstressed length carry the same H, the vertical
     # force v(s) at their ends, and leave no out-of-balance at interior nodes
@@ -503,29 +546,38 @@ def test_divided_cable_matches_the_single_element():
     parts = cat.response(nodes[:-1], nodes[1:], np.full(n, L0 / n), EA, w)
     whole = cat.response(nodes[:1], nodes[-1:], [L0], [EA], [w])
     # node coordinates carry 1 ulp; each short element amplifies it by ~1/strain
-    assert_allclose(parts.H, H, rtol=1e-8)
-    assert_allclose(parts.V, V - W + w * s[1:], rtol=1e-8, atol=1e-8 * H)
+    source = "Irvine 1981, Cable Structures, §1.3 (nodes on the profile by mpmath)"
+    verify.check("cable of 6 elements with nodes on the exact profile: horizontal force H in every element",
+                 source, parts.H, H, rtol=1e-8, unit="N")
+    verify.check("same cable: vertical force V - W + w s at the element ends", source,
+                 parts.V, V - W + w * s[1:], rtol=1e-8, atol=1e-8 * H, unit="N")
     out_of_balance = parts.force[:-1, 3:] + parts.force[1:, :3]
     assert_allclose(out_of_balance, 0.0, atol=1e-8 * H)
     assert_allclose(parts.force[0, :3], whole.force[0, :3], rtol=1e-8, atol=1e-8 * H)
     assert_allclose(parts.force[-1, 3:], whole.force[0, 3:], rtol=1e-8, atol=1e-8 * H)
     pts = cat.shape_points(nodes[:1], nodes[-1:], [L0], [EA], [w], whole.H, whole.V, n + 1)[0]
-    assert_allclose(pts, nodes, rtol=0, atol=1e-12 * L0)
+    verify.check("same cable as one element: drawn profile through the nodes", source,
+                 pts, nodes, rtol=0, atol=1e-12 * L0, unit="m")
 
 
 @pytest.mark.parametrize("H, V, w", [(800.0, 300.0, 12.0), (50.0, 900.0, 20.0), (1.0e3, 400.0, 1e-7),
                                      (1.0e3, 400.0, 0.0), (0.0, 1500.0, 10.0), (0.0, 700.0, 10.0)])
-def test_stretched_length_and_tension_along_the_cable(H, V, w):
+def test_stretched_length_and_tension_along_the_cable(verify, H, V, w):
     # source: Irvine 1981, Cable Structures, §1.3: ds stretches to (1 + T/EA) ds,
     # T(s) = sqrt(H^2 + (V - W + w s)^2); integrated by mpmath quadrature
     L0, EA = 100.0, 1.0e5
     m = [mp.mpf(x) for x in (H, V, L0, w, EA)]
     tension = lambda s: mp.sqrt(m[0] ** 2 + (m[1] - m[3] * m[2] + m[3] * s) ** 2)
     length = float(mp.quad(lambda s: 1 + tension(s) / m[4], [0, (m[2] - m[1] / m[3] if 0 < V < w * L0 else 0), m[2]]))
-    assert_allclose(cat.stretched_length([H], [V], [L0], [w], [EA]), length, rtol=1e-14)
+    source = ("Irvine 1981, Cable Structures, §1.3: ds stretches to (1 + T/EA) ds, "
+              "T(s) = sqrt(H^2 + (V - W + w s)^2); integrated by mpmath.quad")
+    problem = f"catenary H = {H:g} N, V = {V:g} N, w = {w:g} N/m, L0 = 100 m, EA = 1e5 N"
+    verify.check(problem + ": stretched length", source,
+                 cat.stretched_length([H], [V], [L0], [w], [EA]), length, rtol=1e-14, unit="m")
     s = np.array([[0.0, 13.0, 50.0, 100.0]])
     expected = [[float(tension(mp.mpf(x))) for x in s[0]]]
-    assert_allclose(cat.tension_at(s, [H], [V], [L0], [w]), expected, rtol=1e-14)
+    verify.check(problem + ": tension at s = 0, 13, 50, 100 m", source,
+                 cat.tension_at(s, [H], [V], [L0], [w]), expected, rtol=1e-14, unit="N")
 
 
 # ---------------------------------------------------------------------------

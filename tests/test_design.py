@@ -100,7 +100,9 @@ def test_cantilever_stress_against_n_over_a_plus_m_over_w(verify):
                  "Young & Budynas 2002, Roark's Formulas for Stress and Strain, 7th ed., ch. 8 (sigma = M/W) "
                  "with direct stress N/A; moments by statics of the deformed free body",
                  c.demand, sigma, rtol=1e-3, unit="Pa")
-    assert_allclose(c.utilization, sigma / 355e6, rtol=1e-3)
+    verify.check("same cantilever: stress utilization sigma / fy (fy = 355 MPa, yield factor 1)",
+                 "Young & Budynas 2002, Roark's Formulas for Stress and Strain, 7th ed., ch. 8; "
+                 "utilization = demand / capacity (common practice)", c.utilization, sigma / 355e6, rtol=1e-3)
     assert c.check == "stress"
 
 
@@ -265,7 +267,7 @@ def test_study_envelope_is_checked_like_a_result(verify):
     assert "crowd" in out.results
 
 
-def test_sizing_says_when_no_section_makes_a_slack_margin_pass():
+def test_sizing_says_when_no_section_makes_a_slack_margin_pass(verify):
     # H2's live tension is a tenth of its permanent one (2 of 20 kN): with
     # min_tension = 0.2 its slack margin u = 0.2 x 20 / 2 = 2 whatever its
     # section (statically determinate hangers: statics alone gives the
@@ -285,7 +287,10 @@ def test_sizing_says_when_no_section_makes_a_slack_margin_pass():
     unfixable = run.history["no_section_passes"]
     assert [(e["check"], e["group"]) for e in unfixable] == [("slack", "H*")]
     # the probe with the largest section (S200) gives the statics value again
-    assert_allclose(unfixable[0]["utilization_with_largest"], 0.2 * 20 / 2, rtol=1e-9)
+    verify.check("hanger whose live tension is 2 of 20 kN permanent, min_tension 0.2: slack margin with "
+                 "the largest section, 0.2 x 20/2", "common practice (form of the check); statics of a "
+                 "statically determinate hanger", unfixable[0]["utilization_with_largest"], 0.2 * 20 / 2,
+                 rtol=1e-9)
     assert "no catalogue section makes slack of H* pass" in run.history["message"]
     info = with_final_checks(run.history, run_checks(run.spec.design, run.results), run.spec)
     assert not info["final"]["H*"]["passes"] and info["final"]["H*"]["checks_failing"] == ["slack"]
@@ -365,7 +370,9 @@ def test_deflection_limit_sizes_a_simply_supported_beam_like_the_closed_form(ver
     defl = [c for c in run_checks(run.spec.design, run.results).checks if c.check == "deflection-down"]
     # the live deflection itself, against the closed form (8 elements: nodal values of cubic beam
     # elements are exact for consistent loads; 1e-3 covers the axial/geometric terms of the nonlinear run)
-    assert_allclose(defl[0].demand, 5 * q * L ** 4 / (384 * E * expected * 1e-8), rtol=1e-3)
+    verify.check("simply supported beam 10 m, live 5 kN/m, sized section: live midspan deflection 5qL^4/384EI",
+                 "Young & Budynas 2002, Roark's Formulas for Stress and Strain, 7th ed., table 8.1 case 2e",
+                 defl[0].demand, 5 * q * L ** 4 / (384 * E * expected * 1e-8), rtol=1e-3, unit="m")
     assert defl[0].utilization <= 1
     # strength alone asks for less: the deflection governs
     strength, ok = select(run.spec, run.results)

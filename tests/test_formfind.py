@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import HealthCheck, given, settings, strategies as st
 from numpy.testing import assert_allclose
 from scipy.integrate import quad
 from scipy.optimize import fsolve
@@ -42,10 +42,10 @@ def _stays_put(model, factors):
 # force density (linear step)
 # ---------------------------------------------------------------------------
 
-@settings(max_examples=20, deadline=None)
+@settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(q=st.lists(st.floats(0.5, 50.0), min_size=4, max_size=4),
        pts=st.lists(st.floats(-5.0, 5.0), min_size=12, max_size=12))
-def test_unloaded_free_node_sits_at_weighted_mean_of_neighbours(q, pts):
+def test_unloaded_free_node_sits_at_weighted_mean_of_neighbours(verify, q, pts):
     ends = np.array(pts).reshape(4, 3)
     names = ["A", "B", "C", "D"]
     nodes = {n: tuple(p) for n, p in zip(names, ends)}
@@ -58,10 +58,15 @@ def test_unloaded_free_node_sits_at_weighted_mean_of_neighbours(q, pts):
     # source: Schek 1974, The force density method for form finding and computation of general
     # networks, Comput. Methods Appl. Mech. Eng. 3, eq. for an unloaded node: x = sum q x_j / sum q
     expected = (np.array(q)[:, None] * ends).sum(axis=0) / sum(q)
-    assert_allclose(fd.coordinates[model.node_index["F"]], expected, rtol=0, atol=1e-12 * 10)
+    source = ("Schek 1974, The force density method for form finding and computation of general "
+              "networks, Comput. Methods Appl. Mech. Eng. 3")
+    verify.check("force density: unloaded node tied to four random points by random q: its position "
+                 "sum q x_j / sum q", source, fd.coordinates[model.node_index["F"]], expected, rtol=0,
+                 atol=1e-12 * 10, unit="m")
     # tensions are q times the found lengths
     L = np.linalg.norm(ends - expected, axis=1)
-    assert_allclose(fd.tension["bar"], np.array(q) * L, rtol=1e-12)
+    verify.check("same node: member tensions q L", source + " (definition of the force density)",
+                 fd.tension["bar"], np.array(q) * L, rtol=1e-12, unit="N")
 
 
 def _chain(n, a, rise, P, q, kind="bar", EA_area=1.0e-3):
@@ -88,11 +93,13 @@ def test_chain_with_equal_loads_is_the_exact_parabola(verify):
     verify.check("force density: chain of 9 free nodes, equal q and loads, heights",
                  "Schek 1974, Comput. Methods Appl. Mech. Eng. 3 (linear equilibrium of force densities)",
                  X[:, 2], chord - P / (2 * q) * i * (n + 1 - i), atol=1e-12 * rise, unit="m")
-    assert_allclose(X[:, 0], i * a, rtol=1e-13)
+    verify.check("force density: chain of 9 free nodes, equal q and loads, horizontal positions evenly spaced",
+                 "Schek 1974, Comput. Methods Appl. Mech. Eng. 3 (linear equilibrium of force densities)",
+                 X[:, 0], i * a, rtol=1e-13, unit="m")
     assert_allclose(X[:, 1], 0.0, atol=1e-14)
 
 
-def test_grid_on_hyperbolic_paraboloid_boundary_stays_on_it():
+def test_grid_on_hyperbolic_paraboloid_boundary_stays_on_it(verify):
     c, m = 0.08, 7
     nodes, supports, members = {}, {}, []
     for i in range(m):
@@ -114,7 +121,10 @@ def test_grid_on_hyperbolic_paraboloid_boundary_stays_on_it():
     X = fd.coordinates
     # source: Schek 1974; x*y is harmonic and its grid sampling is discretely harmonic, so equal force
     # densities put every interior node of the grid on z = c x y
-    assert_allclose(X[:, 2], c * X[:, 0] * X[:, 1], rtol=0, atol=1e-13)
+    verify.check("force density: 7 x 7 grid, equal q, boundary on z = 0.08 x y: every node on the "
+                 "hyperbolic paraboloid", "Schek 1974, Comput. Methods Appl. Mech. Eng. 3; x y is "
+                 "discretely harmonic on a grid (hand calculation)", X[:, 2], c * X[:, 0] * X[:, 1],
+                 rtol=0, atol=1e-13, unit="m")
     assert_allclose(X[:, :2], model.coordinates[:, :2], rtol=0, atol=1e-13)
 
 
@@ -205,7 +215,7 @@ def _suspension_polygon(n=8, a=5.0, P=2.0e4, sag=2.0, tolerance=1e-9):
                                          adjust=(AdjustGroup(("S*",), together=True),)))
 
 
-def test_target_sag_of_a_point_loaded_cable_gives_the_parabolic_thrust():
+def test_target_sag_of_a_point_loaded_cable_gives_the_parabolic_thrust(verify):
     n, a, P, d = 8, 5.0, 2.0e4, 2.0
     spec = _suspension_polygon(n, a, P, d)
     found = find_shape(spec)
@@ -223,13 +233,18 @@ def test_target_sag_of_a_point_loaded_cable_gives_the_parabolic_thrust():
     xs = x[1:-1]
     R = P * np.sum(L - xs) / L
     M = R * x - P * np.sum(np.clip(x[:, None] - xs[None, :], 0.0, None), axis=1)
-    assert_allclose(H, M[n // 2] / d, rtol=1e-8)
-    assert_allclose(X[:, 2] * H[0], -M, rtol=0, atol=1e-8 * H[0] * d)
+    source = "Irvine 1981, Cable Structures, ch. 2: funicular of the simply supported beam, H z(x) = -M(x)"
+    verify.check("bar cable of 8 panels, 20 kN at each panel point, target midspan sag 2 m: horizontal "
+                 "force M_mid/d in every bar", source, H, M[n // 2] / d, rtol=1e-8, unit="N")
+    verify.check("same cable: shape H z(x) = -M(x) at the found abscissae", source,
+                 X[:, 2] * H[0], -M, rtol=0, atol=1e-8 * H[0] * d, unit="N m")
     # source: Irvine 1981, ch. 2: H = w L^2 / (8 d) for w per horizontal length; equal panel
     # loads P = w a give exactly that for even n (M_mid = P a n^2 / 8) on the undeformed panel
     # points, so the only departure is the shift of the panel points by the stretch N/EA
     strain = np.max(r.tension) / (2.0e11 * 2.0e-3)
-    assert_allclose(H, w * L**2 / (8 * d), rtol=5 * strain)
+    verify.check("same cable: thrust wL^2/8d (tolerance 5 x the strain, the shift of the panel points)",
+                 "Irvine 1981, Cable Structures, ch. 2 (H = wL^2/8d)", H, w * L**2 / (8 * d),
+                 rtol=5 * strain, unit="N")
     assert abs(found.targets[0].miss) <= spec.shape.tolerance
     moved, span = _stays_put(found.model, {"p": 1.0})
     assert moved < 1e-6 * span
@@ -250,7 +265,7 @@ def _irvine_level(L, d, w, EA):
     return sol
 
 
-def test_target_sag_of_a_heavy_divided_cable_matches_the_elastic_catenary():
+def test_target_sag_of_a_heavy_divided_cable_matches_the_elastic_catenary(verify):
     L, d, n = 100.0, 5.0, 8
     mats = {"strand": Material("strand", E=1.6e11, G=6e10, unit_weight=7.85e4)}
     secs = {"r": Section("r", "strand", area=1.0e-3, weight=150.0)}
@@ -264,11 +279,16 @@ def test_target_sag_of_a_heavy_divided_cable_matches_the_elastic_catenary():
     H_ref, L0_ref = _irvine_level(L, d, 150.0, 1.6e11 * 1e-3)
     r = found.equilibrium.responses["cable"]
     # target met to 1e-9 m on a 5 m sag: H and L0 follow to about that relative accuracy
-    assert_allclose(r.H, H_ref, rtol=1e-7)
-    assert_allclose(found.member_length0[0], L0_ref, rtol=1e-9)
+    source = "Irvine 1981, Cable Structures, §1.3 (level elastic catenary; solved by scipy.optimize.fsolve)"
+    verify.check("heavy cable (150 N/m) of 8 elements, span 100 m, target sag 5 m: horizontal force",
+                 source, r.H, H_ref, rtol=1e-7, unit="N")
+    verify.check("same cable: found unstressed length", source, found.member_length0[0], L0_ref,
+                 rtol=1e-9, unit="m")
     # and the parabolic thrust is within the catenary's (d/L)^2 departure from the parabola
     # source: Irvine 1981, ch. 2, H = w L^2 / (8 d) (load per horizontal length ~ w S / L)
-    assert abs(r.H[0] / (150.0 * L0_ref * L / (8 * d)) - 1) < 2 * (d / L) ** 2
+    verify.check("same cable: thrust vs the parabola's wL^2/8d (within 2 (d/L)^2)",
+                 "Irvine 1981, Cable Structures, ch. 2 (H = wL^2/8d)", r.H[0],
+                 150.0 * L0_ref * L / (8 * d), rtol=2 * (d / L) ** 2, unit="N")
 
 
 def test_unreachable_targets_name_the_nodes_and_misses():
@@ -340,7 +360,7 @@ def test_shaped_case_round_trip_and_stays_put(shaped_footbridge):
     assert moved < 1e-6 * span
 
 
-def test_cutting_table_parses_and_matches_the_elastic_catenary(shaped_footbridge):
+def test_cutting_table_parses_and_matches_the_elastic_catenary(verify, shaped_footbridge):
     spec, found, out, _ = shaped_footbridge
     with cutting_path(out).open() as fh:
         rows = list(csv.DictReader(fh))
@@ -374,28 +394,38 @@ def test_cutting_table_parses_and_matches_the_elastic_catenary(shaped_footbridge
         # source: Irvine 1981, Cable Structures, §1.3: a piece ds of unstressed length stretches to
         # (1 + T/EA) ds, so the loaded arc is the quadrature of (1 + T(s)/EA) over the cutting length
         arc, _ = quad(lambda s: 1.0 + T(s) / EA, 0.0, L0, epsabs=0, epsrel=1e-13)
-        assert_allclose(row["loaded_length_m"], arc, rtol=1e-12)
+        verify.check("cutting table of the shaped footbridge, every cable: loaded length",
+                     "Irvine 1981, Cable Structures, §1.3, (1 + T/EA) ds integrated by scipy.integrate.quad",
+                     row["loaded_length_m"], arc, rtol=1e-12, unit="m")
         # the cutting length spans the found nodes: Irvine's chord equations, §1.3
         l_ref = H * L0 / EA + (H / w) * (np.arcsinh(V / H) - np.arcsinh((V - W) / H))
         h_ref = (W * L0 / EA) * (V / W - 0.5) + (H / w) * (np.sqrt(1 + (V / H) ** 2) - np.sqrt(1 + ((V - W) / H) ** 2))
         d = X[t.nodes[e, 1]] - X[t.nodes[e, 0]]
-        assert_allclose([l_ref, h_ref], [np.hypot(d[0], d[1]), d[2]], rtol=1e-10, atol=1e-10)
+        verify.check("same cables: chord between the found nodes from the cutting length",
+                     "Irvine 1981, Cable Structures, §1.3 (chord equations)",
+                     [np.hypot(d[0], d[1]), d[2]], [l_ref, h_ref], rtol=1e-10, atol=1e-10, unit="m")
         # tension column: mean of the end tensions (kN)
-        assert_allclose(row["tension_kN"] * 1e3, 0.5 * (T(0.0) + T(L0)), rtol=1e-12)
+        verify.check("same cables: tension column, mean of the end tensions",
+                     "Irvine 1981, Cable Structures, §1.3, T = sqrt(H^2 + v^2)",
+                     row["tension_kN"] * 1e3, 0.5 * (T(0.0) + T(L0)), rtol=1e-12, unit="N")
         # fabrication at -10 K: L0 (1 + alpha dT)
-        assert_allclose(row["fabrication_length_m"], L0 * (1 + 1.2e-5 * -10.0), rtol=1e-14)
+        verify.check("same cables: fabrication length at -10 K, L0 (1 + alpha dT)",
+                     "thermal strain of a free member (common practice)",
+                     row["fabrication_length_m"], L0 * (1 + 1.2e-5 * -10.0), rtol=1e-14, unit="m")
     # bars: N = EA (L - L0) / L0 (the interface's definition)
     b = model.families["bar"]
     rb = res.responses["bar"]
     for e in range(len(b)):
         row = table[model.members[b.member[e]].id]
         L0 = row["unstressed_length_m"]
-        assert_allclose(row["tension_kN"] * 1e3, b.props["EA"][e] * (rb.length[e] - L0) / L0,
-                        rtol=1e-9, atol=1e-9 * b.props["EA"][e] * 1e-9)
+        verify.check("cutting table of the shaped footbridge, every bar: tension EA (L - L0)/L0",
+                     "engineering strain of the unstressed length (hand calculation)",
+                     row["tension_kN"] * 1e3, b.props["EA"][e] * (rb.length[e] - L0) / L0,
+                     rtol=1e-9, atol=1e-9 * b.props["EA"][e] * 1e-9, unit="N")
         assert_allclose(row["loaded_length_m"], rb.length[e], rtol=1e-14)
 
 
-def test_force_density_net_file_round_trip_stays_put(tmp_path):
+def test_force_density_net_file_round_trip_stays_put(verify, tmp_path):
     case = tmp_path / "net.toml"
     case.write_text((CASES / "saddle_net.toml").read_text() + """
 [shape]
@@ -419,7 +449,10 @@ force_density = { "X*" = 10.0, "Y*" = 12.0 }
         m = next(mm for mm in spec.members if mm.id == row["member"])
         L = np.linalg.norm(np.subtract(X[m.nodes[1]], X[m.nodes[0]]))
         q = 10.0 if m.id.startswith("X") else 12.0
-        assert_allclose(float(row["tension_kN"]), q * L, rtol=2e-3)
+        verify.check("saddle net shaped by force density (q = 10 and 12 kN/m), written and solved again: "
+                     "every member's tension q L", "Schek 1974, Comput. Methods Appl. Mech. Eng. 3 (up to "
+                     "lumped vs distributed cable weight)", float(row["tension_kN"]), q * L, rtol=2e-3,
+                     unit="kN")
 
 
 def test_cli_unmet_targets_exit_1_without_traceback(tmp_path):

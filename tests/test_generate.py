@@ -108,7 +108,7 @@ def test_help_lists_families_parameters_and_examples(capsys):
     assert "--backstays" in text and "(default: 6 m)" in text and "cablefe new suspension --span" in text
 
 
-def test_suspension_cable_is_the_parabola_of_the_permanent_load(tmp_path):
+def test_suspension_cable_is_the_parabola_of_the_permanent_load(tmp_path, verify):
     """H = w L^2 / (8 d) and the drawn cable barely moves under the permanent load.
 
     source: Irvine 1981, Cable Structures, ch. 2 (parabolic cable under a load
@@ -135,8 +135,13 @@ def test_suspension_cable_is_the_parabola_of_the_permanent_load(tmp_path):
     for m in cable:
         a, b = (np.array(nodes[k]) for k in m.nodes)
         horizontal = m.pretension * abs(b[0] - a[0]) / np.linalg.norm(b - a)
-        assert_allclose(horizontal, H, rtol=1e-7)  # written to 8 significant digits: <= 5e-8
-    assert_allclose([nodes[f"C{i}"][2] for i in range(n + 1)], z, rtol=0, atol=1e-8)
+        # written to 8 significant digits: <= 5e-8
+        verify.check("generated suspension footbridge, span 60 m, sag 6 m: horizontal component of every "
+                     "main cable member's pretension = wL^2/8d", "Irvine 1981, Cable Structures, ch. 2 "
+                     "(H = wL^2/8d; common practice for suspension decks)", horizontal, H, rtol=1e-7, unit="N")
+    verify.check("same footbridge: main cable nodes on the parabola through the tower tops",
+                 "Irvine 1981, Cable Structures, ch. 2 (parabolic cable under a load uniform per span)",
+                 [nodes[f"C{i}"][2] for i in range(n + 1)], z, rtol=0, atol=1e-8, unit="m")
 
     results = cablefe.solve(model, names=["permanent"])
     result = results.items[0]
@@ -158,13 +163,20 @@ def test_suspension_cable_is_the_parabola_of_the_permanent_load(tmp_path):
     dw = w_hanger * np.ptp(hangers) / s + w_cable * (np.sqrt(1 + slope.max()**2) - 1)
     deviation = dw / w + 2.0 / 3.0 * (s / L) ** 2
     assert moved < deviation * d
+    verify.check("same footbridge solved under its permanent load: the cable's low point stays within "
+                 "(dw/w + 2/3 (s/L)^2) d of the drawn parabola", "Irvine 1981, Cable Structures, ch. 2 "
+                 "(z = M(x)/H); Young & Budynas 2002, Roark's Formulas for Stress and Strain, table 8.1 "
+                 "(fixed-end moment ws^2/12, from memory)", result.state.positions[low, 2],
+                 model.coordinates[low, 2], rtol=0, atol=deviation * d, unit="m")
     # the cable anchors carry the parabola's horizontal tension, within the
     # same relative load deviation
     reactions = results.reactions("permanent")
-    assert_allclose([abs(reactions["C0"][0]), abs(reactions[f"C{n}"][0])], H, rtol=deviation)
+    verify.check("same footbridge: horizontal reactions at the cable anchors = wL^2/8d (within the same "
+                 "relative load deviation)", "Irvine 1981, Cable Structures, ch. 2 (H = wL^2/8d)",
+                 [abs(reactions["C0"][0]), abs(reactions[f"C{n}"][0])], H, rtol=deviation, unit="N")
 
 
-def test_force_density_grid_on_a_saddle_edge_is_the_hyperbolic_paraboloid():
+def test_force_density_grid_on_a_saddle_edge_is_the_hyperbolic_paraboloid(verify):
     """Equal force densities, no load: the grid inside z = c x y edges is z = c x y.
 
     source: Schek 1974, The force density method for form finding and
@@ -181,8 +193,10 @@ def test_force_density_grid_on_a_saddle_edge_is_the_hyperbolic_paraboloid():
     start = np.column_stack([xy, np.where(fixed, c * xy[:, 0] * xy[:, 1], 0.0)])
     start[~fixed, :2] += 0.3  # a wrong start: the method does not depend on it
     shape = force_density_shape(start, fixed, ends, np.full(len(ends), 5.0e3), np.zeros_like(start))
-    assert_allclose(shape[:, :2], xy, rtol=0, atol=1e-9)
-    assert_allclose(shape[:, 2], c * xy[:, 0] * xy[:, 1], rtol=0, atol=1e-9)
+    verify.check("generator's force density: 6 x 6 grid, equal q, edges on z = 0.07 x y, from a wrong start: "
+                 "nodes on the grid and on the hyperbolic paraboloid", "Schek 1974, The force density method "
+                 "for form finding and computation of general networks, eq. 8 (linear equilibrium)",
+                 shape, np.column_stack([xy, c * xy[:, 0] * xy[:, 1]]), rtol=0, atol=1e-9, unit="m")
 
 
 @pytest.mark.parametrize("name", FAMILY_NAMES)
@@ -217,7 +231,7 @@ def test_run_shapes_and_solves_a_generated_case(name, tmp_path, capsys):
                 assert abs(got - value) <= tol, (nid, axis, got, value)
 
 
-def test_generated_suspension_cable_converges_at_second_order_with_hanger_spacing():
+def test_generated_suspension_cable_converges_at_second_order_with_hanger_spacing(verify):
     # source: parabolic cable (Irvine 1981, Cable Structures, ch. 2): a deck
     # load hung at hanger points spaced s is the uniform load lumped at the
     # nodes; the cable between hangers differs from the smooth parabolic
@@ -246,4 +260,6 @@ def test_generated_suspension_cable_converges_at_second_order_with_hanger_spacin
         lengths.append(found.cutting.unstressed_length[main_cable].sum())
     steps = np.abs(np.diff(lengths))
     rate = np.polyfit(np.log([1.0, 0.5, 0.25]), np.log(steps), 1)[0]
-    assert_allclose(rate, 2.0, atol=0.05)
+    verify.check("generated suspension footbridge, hanger spacing 10 to 1.25 m: order of convergence of "
+                 "the main cable's unstressed length", "Irvine 1981, Cable Structures, ch. 2 (parabolic "
+                 "cable); lumped load as the midpoint rule (common practice)", rate, 2.0, atol=0.05)

@@ -11,7 +11,7 @@ units, and solutions of backward-stable solvers agree to a few n * eps.
 import numpy as np
 import pytest
 import scipy.sparse as sp
-from hypothesis import given, settings
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose, assert_array_equal
 
@@ -26,6 +26,10 @@ from cablefe.solvers.linear import (
 
 BACKENDS = available_backends()
 EPS = np.finfo(float).eps
+# the verify fixture only records, so one instance may serve every example
+SHARED_FIXTURE = [HealthCheck.function_scoped_fixture]
+LAPACK_SOLVE = ("numpy.linalg.solve (LAPACK dgesv, LU with partial pivoting; Anderson et al. 1999, "
+                "LAPACK Users' Guide, 3rd ed.)")
 
 
 # --------------------------------------------------------------------------
@@ -101,9 +105,9 @@ def assert_solves(K, x, b, rtol):
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
-@settings(max_examples=12, deadline=None)
+@settings(max_examples=12, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(n=st.integers(1, 60), density=st.floats(0.02, 0.3), seed=st.integers(0, 10**6))
-def test_spd_matches_dense_solve(backend, n, density, seed):
+def test_spd_matches_dense_solve(verify, backend, n, density, seed):
     K = dominant(n, density, seed)
     b = np.random.default_rng(seed + 1).standard_normal(n)
     fact = make_linear_solver(backend).factorize(K)
@@ -112,20 +116,23 @@ def test_spd_matches_dense_solve(backend, n, density, seed):
     # partial pivoting; Anderson et al. 1999, LAPACK Users' Guide, 3rd ed.)
     x_ref = np.linalg.solve(K.toarray(), b)
     # cond(K) < 2 r_max + 2 < 40 here: both solutions agree to ~ cond n eps
-    assert_allclose(x, x_ref, rtol=1e-11, atol=1e-12 * np.abs(x_ref).max())
+    verify.check(f"sparse solve ({backend}) of random diagonally dominant SPD systems, n <= 60",
+                 LAPACK_SOLVE, x, x_ref, rtol=1e-11, atol=1e-12 * np.abs(x_ref).max())
     assert_solves(K, x, b, rtol=100 * n * EPS)
     assert fact.n == n and not fact.fallback
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
-def test_indefinite_symmetric(backend):
+def test_indefinite_symmetric(backend, verify):
     n, neg = 80, 7
     K = dominant(n, 0.08, 3, negative=neg)
     B = np.random.default_rng(4).standard_normal((n, 3))
     fact = make_linear_solver(backend).factorize(K)
     X = fact.solve(B)
     # source: NumPy reference, numpy.linalg.solve (LAPACK dgesv)
-    assert_allclose(X, np.linalg.solve(K.toarray(), B), rtol=1e-11, atol=1e-12)
+    verify.check(f"sparse solve ({backend}) of an indefinite symmetric system (n = 80, 7 negative "
+                 "eigenvalues), three right-hand sides", LAPACK_SOLVE,
+                 X, np.linalg.solve(K.toarray(), B), rtol=1e-11, atol=1e-12)
     # source: Sylvester's law of inertia, eigenvalue signs from
     # numpy.linalg.eigvalsh (LAPACK dsyevd)
     lam = np.linalg.eigvalsh(K.toarray())
@@ -133,19 +140,23 @@ def test_indefinite_symmetric(backend):
     assert expected == (n - neg, neg, 0)
     inertia = fact.inertia()
     if inertia is not None:   # splu-default's row pivoting hides it
-        assert inertia == expected
+        verify.check(f"inertia from the factorization ({backend}) of the same system",
+                     "Sylvester's law of inertia; eigenvalue signs by numpy.linalg.eigvalsh (LAPACK dsyevd)",
+                     inertia, expected)
     if backend in ("superlu", "pardiso"):
         assert inertia is not None
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
-def test_tiny_diagonal_pivots_fall_back(backend):
+def test_tiny_diagonal_pivots_fall_back(backend, verify):
     K = tiny_diagonal_pairs(25, seed=5)
     b = np.random.default_rng(6).standard_normal(50)
     fact = make_linear_solver(backend).factorize(K)
     x = fact.solve(b)
     # source: NumPy reference, numpy.linalg.solve (LAPACK dgesv); cond(K) = 1
-    assert_allclose(x, np.linalg.solve(K.toarray(), b), rtol=1e-12, atol=1e-13)
+    verify.check(f"sparse solve ({backend}) of 25 permuted [[1e-14, 1], [1, 1e-14]] blocks (tiny "
+                 "diagonal pivots)", LAPACK_SOLVE + "; cond(K) = 1",
+                 x, np.linalg.solve(K.toarray(), b), rtol=1e-12, atol=1e-13)
     if backend == "superlu":
         # diagonal pivots of 1e-14 grow the factors by 1e14: the probe must
         # reject them and partial pivoting take over
@@ -155,7 +166,7 @@ def test_tiny_diagonal_pivots_fall_back(backend):
 
 @pytest.mark.parametrize("backend", BACKENDS)
 @pytest.mark.parametrize("case", ["mild", "tiny-diagonal"])
-def test_unsymmetric(backend, case):
+def test_unsymmetric(backend, case, verify):
     if case == "mild":
         K = dominant(70, 0.1, 8, negative=5, symmetric=False, skew=0.3)
     else:
@@ -165,11 +176,12 @@ def test_unsymmetric(backend, case):
     fact = make_linear_solver(backend, symmetric=False).factorize(K)
     x = fact.solve(b)
     # source: NumPy reference, numpy.linalg.solve (LAPACK dgesv)
-    assert_allclose(x, np.linalg.solve(K.toarray(), b), rtol=1e-11, atol=1e-12)
+    verify.check(f"sparse solve ({backend}) of an unsymmetric system ({case})", LAPACK_SOLVE,
+                 x, np.linalg.solve(K.toarray(), b), rtol=1e-11, atol=1e-12)
     assert fact.inertia() is None
 
 
-def test_pattern_reuse_with_new_values():
+def test_pattern_reuse_with_new_values(verify):
     K1 = dominant(120, 0.05, 11, negative=3)
     K2 = K1.copy()
     rng = np.random.default_rng(12)
@@ -188,15 +200,17 @@ def test_pattern_reuse_with_new_values():
         f2 = solver.factorize(K2)
         x2 = f2.solve(b)
         # source: NumPy reference, numpy.linalg.solve (LAPACK dgesv)
-        assert_allclose(x1, np.linalg.solve(K1.toarray(), b), rtol=1e-11, atol=1e-12)
-        assert_allclose(x2, np.linalg.solve(K2.toarray(), b), rtol=1e-11, atol=1e-12)
+        verify.check(f"sparse solve ({backend}) of two systems on one pattern (factorize, solve, "
+                     "refactorize, solve)", LAPACK_SOLVE, [x1, x2],
+                     [np.linalg.solve(K1.toarray(), b), np.linalg.solve(K2.toarray(), b)],
+                     rtol=1e-11, atol=1e-12)
         assert not f1.reused_pattern and f2.reused_pattern
         # a different pattern is recognized as such
         f3 = solver.factorize(dominant(120, 0.05, 13))
         assert not f3.reused_pattern
 
 
-def test_coo_csc_and_duplicate_entries():
+def test_coo_csc_and_duplicate_entries(verify):
     # an assembly in COO form with duplicate (summed) entries, then the same
     # matrix as CSC: both are one pattern after canonicalization
     K = dominant(50, 0.1, 23, negative=2)
@@ -211,14 +225,16 @@ def test_coo_csc_and_duplicate_entries():
     for backend in BACKENDS:
         solver = make_linear_solver(backend)
         f1 = solver.factorize(dup)
-        assert_allclose(f1.solve(b), x_ref, rtol=1e-11, atol=1e-12)
+        verify.check(f"sparse solve ({backend}) of a system assembled in COO form with duplicate entries",
+                     LAPACK_SOLVE, f1.solve(b), x_ref, rtol=1e-11, atol=1e-12)
         f2 = solver.factorize(K.tocsc())
         assert f2.reused_pattern
-        assert_allclose(f2.solve(b), x_ref, rtol=1e-11, atol=1e-12)
-        assert_allclose(solver.solve(K.toarray(), b), x_ref, rtol=1e-11, atol=1e-12)
+        verify.check(f"sparse solve ({backend}) of the same system as CSC and as a dense array",
+                     LAPACK_SOLVE, [f2.solve(b), solver.solve(K.toarray(), b)], [x_ref, x_ref],
+                     rtol=1e-11, atol=1e-12)
 
 
-def test_inputs_are_not_mutated_and_values_are_owned():
+def test_inputs_are_not_mutated_and_values_are_owned(verify):
     K = dominant(40, 0.1, 14, negative=2)
     b = np.random.default_rng(15).standard_normal(40)
     K_before, b_before = K.copy(), b.copy()
@@ -233,19 +249,20 @@ def test_inputs_are_not_mutated_and_values_are_owned():
         # still solve (and check residuals against) the matrix it was given
         K.data *= 2.0
         # source: NumPy reference, numpy.linalg.solve (LAPACK dgesv)
-        assert_allclose(fact.solve(b), x_ref, rtol=1e-11, atol=1e-12)
-        assert_allclose(x, x_ref, rtol=1e-11, atol=1e-12)
+        verify.check(f"sparse solve ({backend}) before and after the caller overwrites the matrix values",
+                     LAPACK_SOLVE, [fact.solve(b), x], [x_ref, x_ref], rtol=1e-11, atol=1e-12)
         K.data[:] = K_before.data
 
 
-def test_rhs_shapes_and_empty_system():
+def test_rhs_shapes_and_empty_system(verify):
     K = dominant(30, 0.1, 16)
     fact = make_linear_solver("superlu").factorize(K)
     B = np.random.default_rng(17).standard_normal((30, 4))
     X = fact.solve(B)
     assert X.shape == (30, 4)
     # source: NumPy reference, numpy.linalg.solve (LAPACK dgesv)
-    assert_allclose(X, np.linalg.solve(K.toarray(), B), rtol=1e-11, atol=1e-12)
+    verify.check("sparse solve (superlu) with four right-hand sides at once", LAPACK_SOLVE,
+                 X, np.linalg.solve(K.toarray(), B), rtol=1e-11, atol=1e-12)
     with pytest.raises(ValueError, match="shape"):
         fact.solve(np.ones(29))
     empty = make_linear_solver("superlu").factorize(sp.csr_matrix((0, 0)))
@@ -277,7 +294,7 @@ def chain_tolerance(K):
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
-def test_spring_chain_closed_form(backend):
+def test_spring_chain_closed_form(backend, verify):
     # stiffness contrast 1e7: cond(K) ~ 6e9, but nothing is singular
     k = np.where(np.arange(40) % 2 == 0, 2.0e7, 2.0)   # N/m
     P = 1.0e3                                           # N at the free end
@@ -289,11 +306,15 @@ def test_spring_chain_closed_form(backend):
     # u_j = P * sum_{i<=j} 1/k_i (Hooke's law; e.g. Bathe 2014, Finite
     # Element Procedures, sec. 3.2, from memory)
     u = P * np.cumsum(1.0 / k)
-    assert_allclose(x, u, rtol=0.0, atol=chain_tolerance(K) * np.abs(u).max())
+    verify.check(f"40 springs in series, stiffness contrast 1e7, end load ({backend}): displacements "
+                 "u_j = P sum 1/k_i (tolerance cond(K) x 100 eps)", "Hooke's law for springs in series "
+                 "(e.g. Bathe 2014, Finite Element Procedures, sec. 3.2, from memory); Higham 2002, "
+                 "Accuracy and Stability of Numerical Algorithms, 2nd ed., Thm 7.2",
+                 x, u, rtol=0.0, atol=chain_tolerance(K) * np.abs(u).max(), unit="m")
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
-def test_soft_support_is_solved_not_flagged(backend):
+def test_soft_support_is_solved_not_flagged(backend, verify):
     # the whole chain hangs on one spring 1e-9 times softer than the rest:
     # scaled condition ~ 1e11, above the probe's trigger, so the mode search
     # runs and must find a (small) stiffness, not a mechanism
@@ -307,7 +328,10 @@ def test_soft_support_is_solved_not_flagged(backend):
     assert fact.condition_estimate > 1e10
     # source: springs in series, u_j = P * sum_{i<=j} 1/k_i (see above)
     u = P * np.cumsum(1.0 / k)
-    assert_allclose(fact.solve(b), u, rtol=0.0, atol=chain_tolerance(K) * np.abs(u).max())
+    verify.check(f"chain of 30 springs hung on one 1e-9 times softer spring ({backend}): displacements "
+                 "u_j = P sum 1/k_i", "Hooke's law for springs in series (e.g. Bathe 2014, Finite Element "
+                 "Procedures, sec. 3.2, from memory); Higham 2002, Thm 7.2",
+                 fact.solve(b), u, rtol=0.0, atol=chain_tolerance(K) * np.abs(u).max(), unit="m")
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
@@ -374,13 +398,14 @@ def test_unknown_backend_lists_known_names():
     assert "cholmod" in str(err.value)
 
 
-def test_auto_is_always_available():
+def test_auto_is_always_available(verify):
     solver = make_linear_solver()
     assert solver.name == "auto"
     K = dominant(20, 0.2, 18)
     b = np.ones(20)
     # source: NumPy reference, numpy.linalg.solve (LAPACK dgesv)
-    assert_allclose(solver.solve(K, b), np.linalg.solve(K.toarray(), b), rtol=1e-11)
+    verify.check("sparse solve by the automatic backend choice", LAPACK_SOLVE,
+                 solver.solve(K, b), np.linalg.solve(K.toarray(), b), rtol=1e-11)
     assert set(available_backends()) >= {"superlu", "splu-default"}
 
 
@@ -447,7 +472,7 @@ def _grid_tangent(m, seed, unsymmetric=0.0):
 
 
 @pytest.mark.parametrize("unsymmetric", [0.0, 0.05])
-def test_schur_product_matches_dense_solve(monkeypatch, unsymmetric):
+def test_schur_product_matches_dense_solve(monkeypatch, unsymmetric, verify):
     from cablefe.solvers.linear import schur
     import scipy.sparse.linalg as spla
     monkeypatch.setattr(schur, "WORTH", 1e9)       # take the route whatever it costs
@@ -465,7 +490,9 @@ def test_schur_product_matches_dense_solve(monkeypatch, unsymmetric):
     assert got is not None
     # source: C K^-1 F by LAPACK's dense LU solve (numpy.linalg.solve)
     expected = C.toarray() @ np.linalg.solve(K.toarray(), F.toarray())
-    assert_allclose(got, expected, rtol=0, atol=1e-11 * np.abs(expected).max())
+    verify.check(f"C K^-1 F through the Schur complement on 72 of 576 unknowns ({'un' if unsymmetric else ''}"
+                 "symmetric grid tangent)", "LAPACK dense LU solve (numpy.linalg.solve)",
+                 got, expected, atol=1e-11 * np.abs(expected).max())
 
 
 def test_schur_product_declines_when_it_does_not_pay_or_fails_its_check(monkeypatch):
@@ -486,9 +513,17 @@ def test_schur_product_declines_when_it_does_not_pay_or_fails_its_check(monkeypa
     assert schur.schur_product(K, order, C, F, factor_nnz=n) is None
 
 
-@pytest.mark.parametrize("backend", BACKENDS)
 @pytest.mark.parametrize("small_system", [5000, 0])
-def test_solve_blocks_match_dense_solve(monkeypatch, backend, small_system):
+def test_solve_blocks_match_dense_solve(monkeypatch, small_system, verify):
+    _solve_blocks_against_dense(monkeypatch, "superlu", small_system, verify)
+
+
+@pytest.mark.parametrize("backend", [b for b in BACKENDS if b != "superlu"])
+def test_solve_blocks_of_other_backends(monkeypatch, backend):
+    _solve_blocks_against_dense(monkeypatch, backend, 5000, None)
+
+
+def _solve_blocks_against_dense(monkeypatch, backend, small_system, verify):
     from cablefe.solvers.linear import solver as solver_module
     monkeypatch.setattr(solver_module, "SMALL_SYSTEM", small_system)
     K = _grid_tangent(15, 6)
@@ -502,7 +537,12 @@ def test_solve_blocks_match_dense_solve(monkeypatch, backend, small_system):
         firsts.append(a)
     assert firsts == sorted(set(firsts)) and firsts[0] == 0
     # source: LAPACK's dense LU solve (numpy.linalg.solve)
-    assert_allclose(X, np.linalg.solve(K.toarray(), B), rtol=0, atol=1e-10 * np.abs(X).max())
+    expected = np.linalg.solve(K.toarray(), B)
+    if verify is None:
+        assert_allclose(X, expected, rtol=0, atol=1e-10 * np.abs(X).max())
+        return
+    verify.check(f"K X = B solved a block of columns at a time ({backend}, 37 columns)",
+                 "LAPACK dense LU solve (numpy.linalg.solve)", X, expected, atol=1e-10 * np.abs(X).max())
 
 
 def test_solve_blocks_resolve_a_block_that_fails_its_check(monkeypatch):

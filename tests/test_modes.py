@@ -259,6 +259,9 @@ def test_simply_supported_beam_frequencies_converge_at_fourth_order(verify):
             assert np.all(np.abs(vertical / exact - 1) < 1.5 * bound)
     rate = np.polyfit(np.log([4, 8, 16]), np.log(errors), 1)[0]
     assert -4.6 < rate < -3.4
+    verify.check("simply supported beam, 4/8/16 beam elements: order of convergence of mode 2",
+                 "Hermite elements with consistent mass converge as h^4 (common practice); reference "
+                 "Blevins 1979, table 8-1 with Rayleigh's rotary inertia", -rate, 4.0, atol=0.6)
 
 
 def test_cantilever_frequencies_vertical_and_lateral(verify):
@@ -292,7 +295,8 @@ def test_beam_mass_matrix_moves_rigidly_with_the_section(verify):
     for d in range(3):
         u = np.zeros(12)
         u[[d, 6 + d]] = 1.0
-        assert_allclose(u @ M @ u, m * L, rtol=1e-12)
+        verify.check(f"beam consistent mass: rigid translation along global {'xyz'[d]} carries m L",
+                     "rigid-body kinetic energy (exact)", u @ M @ u, m * L, rtol=1e-12, unit="kg")
     for axis, rot in ((1, ry), (2, rz), (0, jx)):
         w = frame[:, axis]
         u = np.concatenate([np.cross(w, xi - mid), w, np.cross(w, xj - mid), w])
@@ -302,7 +306,8 @@ def test_beam_mass_matrix_moves_rigidly_with_the_section(verify):
                      rtol=1e-12, unit="kg m^2")
     assert_allclose(M, M.T, atol=1e-12)
     Mb = bar.mass_matrix([L], [m], lumped=False)[0]
-    assert_allclose(np.ones(6) @ Mb @ np.ones(6) / 3, m * L, rtol=1e-12)
+    verify.check("bar consistent mass: rigid translation carries m L", "rigid-body kinetic energy (exact)",
+                 np.ones(6) @ Mb @ np.ones(6) / 3, m * L, rtol=1e-12, unit="kg")
 
 
 # -- modal properties ------------------------------------------------------------------
@@ -379,7 +384,9 @@ def test_effective_masses_of_all_modes_sum_to_the_mobile_mass(verify):
     assert_allclose(np.sum([md.effective_mass_ratio for md in found.modes], axis=0), 1.0, rtol=1e-9)
     # added masses: 500 kg on C and 40 kg/m on the 6.08 m rafter
     rafter = np.linalg.norm([6, 1, 0.5])
-    assert_allclose(found.added_mass, 500 + 40 * rafter, rtol=1e-12)
+    verify.check("small frame: added mass 500 kg on a node plus 40 kg/m on the 6.08 m rafter",
+                 "hand calculation from the case's masses", found.added_mass, 500 + 40 * rafter,
+                 rtol=1e-12, unit="kg")
     assert_allclose(found.own_mass, found.self_weight_mass, rtol=1e-12)
 
 
@@ -409,7 +416,9 @@ def test_frequencies_scale_with_the_root_of_stiffness_over_mass(verify):
     assert "E = 100000000.0" in text
     text = text.replace("E = 100000000.0", "E = 300000000.0").replace("unit_weight = 100.0", "unit_weight = 300.0")
     b = modes_of(model_of(text))
-    assert_allclose([m.frequency for m in b.modes], [m.frequency for m in a.modes], rtol=1e-7)
+    verify.check("sagging cable with 3 E and 3 unit weight: frequencies unchanged",
+                 "omega^2 = k / m with the shape and tension per unit mass kept (dimensional analysis, exact)",
+                 [m.frequency for m in b.modes], [m.frequency for m in a.modes], rtol=1e-7, unit="Hz")
 
 
 def test_a_string_without_tension_is_a_mechanism_with_a_clear_message():
@@ -597,7 +606,7 @@ tension_only = true
     assert taut[1] > 2 * alone[1]    # the first vertical mode is held at midspan by the guy
 
 
-def test_lane_integral_of_a_sign_changing_element_matches_quadrature():
+def test_lane_integral_of_a_sign_changing_element_matches_quadrature(verify):
     # source: scipy.integrate.quad of |a + (b - a) s / L| (an independent evaluation)
     from scipy.integrate import quad
     from cablefe.dynamics.pedestrians import lane_integral, reduction
@@ -606,7 +615,8 @@ def test_lane_integral_of_a_sign_changing_element_matches_quadrature():
     expected = sum(quad(lambda s, a=a_, b=b_, L=L_: abs(a + (b - a) * s / L), 0, L_,
                         points=[L_ * a_ / (a_ - b_)] if a_ * b_ < 0 else None, epsabs=1e-13)[0]
                    for a_, b_, L_ in zip(a, b, L))
-    assert_allclose(lane_integral(a, b, L), expected, rtol=1e-10)
+    verify.check("integral of |mode| over 20 random elements, some changing sign",
+                 "scipy.integrate.quad of |a + (b - a) s / L|", lane_integral(a, b, L), expected, rtol=1e-10)
     # psi: 0 outside the corner points, linear between them
     corners = [[1.25, 0.0], [1.7, 1.0], [2.1, 1.0], [2.3, 0.0]]
     assert reduction(1.0, corners) == 0.0 and reduction(2.5, corners) == 0.0

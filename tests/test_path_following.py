@@ -135,10 +135,12 @@ def test_von_mises_truss_through_its_limit_point_from_the_case_file(tmp_path, ve
     assert any("unstable equilibrium" in w for w in res["warnings"])
     u_end = brentq(lambda x: truss_load(x) - P, 2.0 * H0, 4.0 * H0, xtol=1e-14)
     # dP/du ~ 3e3 N/m there: the residual test moves u by < 1e-9 m
-    assert_allclose(u[-1], u_end, atol=1e-9)
+    verify.check("Von Mises truss by arc length from a case file: final apex drop where P(u) = P on the "
+                 "inverted branch", "Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory); "
+                 "root by scipy.optimize.brentq", u[-1], u_end, atol=1e-9, unit="m")
 
 
-def test_load_control_records_the_path_and_warns_of_the_jump(tmp_path):
+def test_load_control_records_the_path_and_warns_of_the_jump(tmp_path, verify):
     u_star, P_max = limit_point()
     code, res = run_truss(tmp_path, 2.0 * P_max, 'track = ["C"]', increments=8)
     assert code == 0 and res["converged"]
@@ -147,24 +149,29 @@ def test_load_control_records_the_path_and_warns_of_the_jump(tmp_path):
     assert np.all(np.diff(lam) > 0) and lam[-1] == 1.0
     # source: Bažant & Cedolin 1991, ch. 4 (from memory): every converged
     # state is on the exact path, none on its unstable branch
-    assert_allclose(lam * 2.0 * P_max, truss_load(u), rtol=0,
-                    atol=TOL * np.max(lam * 2.0 * P_max + 2 * np.abs(bar_force(u))))
+    verify.check("Von Mises truss under load control to 2 P_max: apex load at every recorded step, "
+                 "P = 2EA(H0 - u)(1/L - 1/L0)", "Bažant & Cedolin 1991, Stability of Structures, ch. 4 "
+                 "(from memory)", lam * 2.0 * P_max, truss_load(u), rtol=0,
+                 atol=TOL * np.max(lam * 2.0 * P_max + 2 * np.abs(bar_force(u))), unit="N")
     assert not np.any((u > u_star) & (u < 2 * H0 - u_star))
     assert res["stability"]["stable"]
     assert any("limit point" in w and "jumped" in w for w in res["warnings"])
 
 
-def test_below_the_limit_load_both_controls_agree(tmp_path):
+def test_below_the_limit_load_both_controls_agree(tmp_path, verify):
     u_star, P_max = limit_point()
     P = 0.8 * P_max
     _, arc = run_truss(tmp_path, P, 'control = "arc-length"\ntrack = ["C"]')
     _, load = run_truss(tmp_path, P, 'track = ["C"]')
     assert arc["converged"] and load["converged"] and arc["warnings"] == [] == load["warnings"]
     u_ref = brentq(lambda x: truss_load(x) - P, 0.0, u_star, xtol=1e-14)
-    for res in (arc, load):
+    for control, res in (("arc length", arc), ("load control", load)):
         # source: Bažant & Cedolin 1991, ch. 4 (from memory); dP/du >= 1e2 N/m
         # on this branch: the residual test moves u by < 1e-9 m
-        assert_allclose(-res["nodes"]["C"]["displacement"][2], u_ref, atol=1e-9)
+        verify.check(f"Von Mises truss at 0.8 P_max by {control}: apex drop on the stable branch",
+                     "Bažant & Cedolin 1991, Stability of Structures, ch. 4 (from memory); root by "
+                     "scipy.optimize.brentq", -res["nodes"]["C"]["displacement"][2], u_ref, atol=1e-9,
+                     unit="m")
         assert np.all(np.diff([e["load_factor"] for e in res["path"]]) > 0)
 
 
@@ -260,6 +267,9 @@ def test_shallow_arch_snaps_through_against_the_shallow_arch_solution(verify):
                  "Cedolin 1991, Stability of Structures, ch. 2 (both from memory)",
                  p40, arch_load(a40), rtol=0, atol=1e-3 * p_max, unit="N/m")
     assert 1.7 < math.log2(d20 / d40) < 2.3
+    verify.check("shallow sinusoidal arch, 20 and 40 beam elements: order of the largest load error",
+                 "Fung & Kaplan 1952, NACA TN 2840 (from memory); O(h^2) of cubic beam elements",
+                 math.log2(d20 / d40), 2.0, atol=0.3)
     # the path goes over the limit point and comes back: λ falls after it
     assert np.max(p40) == p40[-1] and np.any(np.diff(p40) < 0)
     assert np.any(p40[:-1] > 0.95 * p_max) and a40.min() < -a_lim
@@ -269,6 +279,10 @@ def test_shallow_arch_snaps_through_against_the_shallow_arch_solution(verify):
     for a, n in zip(a40, neg40):
         if abs(abs(a) / a_lim - 1.0) > 0.05:
             assert (n > 0) == (abs(a) < a_lim), (a / a_lim, n)
+            verify.check("shallow sinusoidal arch, 40 elements: unstable (negative pivots) exactly on the "
+                         "descending branch |a| < a_lim, a_lim^2 = (e^2 - 4r^2)/3 (1 = unstable)",
+                         "Fung & Kaplan 1952, NACA TN 2840; Bažant & Cedolin 1991, Stability of Structures, "
+                         "ch. 2 (both from memory)", float(n > 0), float(abs(a) < a_lim))
 
 
 def test_arc_length_on_a_load_that_moves_nothing(tmp_path):

@@ -177,7 +177,7 @@ def _hung_cable(n=8, a=5.0, P=2.0e4, sag=3.0, deck=-6.0, rough=0.0, seed=0, pret
     (dict(rough=1.0, seed=3), False),                           # cable nodes off too
     (dict(rough=1.0, seed=4, pretension=5e4), False),
 ])
-def test_rough_hung_cable_gives_the_parabolic_thrust(drawing, equal_panels):
+def test_rough_hung_cable_gives_the_parabolic_thrust(drawing, equal_panels, verify):
     n, a, P, d = 8, 5.0, 2.0e4, 3.0
     spec = _hung_cable(n, a, P, d, **drawing)
     found = find_shape(spec)
@@ -204,7 +204,10 @@ def test_rough_hung_cable_gives_the_parabolic_thrust(drawing, equal_panels):
     R = P * np.sum(L - xs) / L
     x_mid = X[found.model.node_index[f"C{n // 2}"], 0]
     M_mid = R * x_mid - P * np.sum(np.clip(x_mid - xs, 0.0, None))
-    assert_allclose(H, M_mid / d, rtol=1e-8)
+    verify.check(f"cable of 8 bar panels with hangers, 20 kN per deck node, shaped from a rough drawing "
+                 f"({drawing or 'the parabola'}): horizontal force M_mid/d in every panel",
+                 "Irvine 1981, Cable Structures, ch. 2: funicular of the simply supported beam, "
+                 "H z(x) = -M(x) (exact statics)", H, M_mid / d, rtol=1e-8, unit="N")
     # source: Irvine 1981, ch. 2: H = w L^2 / (8 d), w per horizontal length; equal panel loads
     # P = w a give exactly that on panel points a apart (M_mid = P a n^2 / 8, n even): the only
     # departure is the shift of the panel points by the cable's stretch N/EA.  A cable drawn
@@ -213,11 +216,14 @@ def test_rough_hung_cable_gives_the_parabolic_thrust(drawing, equal_panels):
     # above apply
     if equal_panels:
         strain = np.max(r.tension[main_cable]) / (2.0e11 * 2.0e-3)
-        assert_allclose(H, w * L**2 / (8 * d), rtol=5 * strain)
+        verify.check("same cable with equal panels: thrust wL^2/8d (tolerance 5 x the strain)",
+                     "Irvine 1981, Cable Structures, ch. 2 (H = wL^2/8d)", H, w * L**2 / (8 * d),
+                     rtol=5 * strain, unit="N")
     # hangers carry the deck loads, none slack in the final (exact) equilibrium
     hangers = ~main_cable
     assert not r.slack[hangers].any()
-    assert_allclose(r.tension[hangers], P, rtol=1e-8)
+    verify.check("same cable: every hanger carries its deck load P", "statics of a deck node hung from "
+                 "one vertical hanger", r.tension[hangers], P, rtol=1e-8, unit="N")
     assert max(abs(tr.miss) for tr in found.targets) <= spec.shape.tolerance
 
 

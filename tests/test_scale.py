@@ -78,10 +78,10 @@ def test_compact_form_gives_the_same_model_as_the_long_form():
         assert_array_equal(long.load_cases[case].nodal, short.load_cases[case].nodal)
 
 
-def test_batched_members_match_the_member_loop(spec_factory):
+def test_batched_members_match_the_member_loop(spec_factory, verify):
     """Straight members (batched) between divided ones (looped) keep member
     order, element numbering and interior nodes, and their properties follow
-    the definitions of the interface page."""
+    the axial law N = EA (L - L0) / L0."""
     from cablefe.spec import Member
     nodes = {"A": (0.0, 0.0, 0.0), "B": (4.0, 0.0, 0.0), "C": (4.0, 3.0, 0.0), "D": (0.0, 3.0, 1.0)}
     members = [Member("M0", "bar", ("A", "B"), "s", pretension=1.0e4),
@@ -96,8 +96,11 @@ def test_batched_members_match_the_member_loop(spec_factory):
     assert [(m.family, m.first, m.count) for m in model.members] == \
         [("bar", 0, 1), ("bar", 1, 3), ("bar", 4, 1), ("cable", 0, 2), ("cable", 2, 1)]
     EA = 2.0e11 * 1.0e-3
-    # source: interface page (v1), member types: length0 = L / (1 + T / EA)
-    assert_allclose(bar.props["unstressed_length"][[0, 4]], [4.0 / (1.0 + 1.0e4 / EA), 4.0], rtol=1e-15)
+    # source: the axial law N = EA (L - L0) / L0 solved for the unstressed
+    # length of a member given its pretension T: L0 = L / (1 + T / EA)
+    verify.check("bar of 4 m with a pretension of 10 kN (EA = 2e8 N), and one without: unstressed length "
+                 "L / (1 + T/EA)", "N = EA (L - L0)/L0 solved for L0 (hand calculation)",
+                 bar.props["unstressed_length"][[0, 4]], [4.0 / (1.0 + 1.0e4 / EA), 4.0], rtol=1e-15, unit="m")
     assert_allclose(cable.props["unstressed_length"][2], 5.0, rtol=1e-15)
     assert_array_equal(bar.props["tension_only"], [False, False, False, False, True])
     assert_array_equal(cable.props["tension_only"], [True, True, True])
@@ -187,13 +190,15 @@ _FAST_TEXTS = sorted(units.FAST_UNITS) + [
 
 
 @pytest.mark.parametrize("text", [t for t in _FAST_TEXTS if t != "1"])
-def test_fast_units_match_pint(text):
+def test_fast_units_match_pint(text, verify):
     # source: pint (Grecco et al., pint unit definitions, default_en.txt) as the reference library
     fast = units._fast_unit_info(text)
     assert fast is not None
     q = units.registry().parse_expression(text)
     # pint multiplies prefix factors in floating point: a few roundings of 1.1e-16
-    assert_allclose(fast[0], q.to_base_units().magnitude, rtol=4 * np.finfo(float).eps, atol=0)
+    verify.check(f'unit "{text}" read without pint: factor to SI base units', "pint (Grecco et al., pint "
+                 "unit definitions, default_en.txt)", fast[0], q.to_base_units().magnitude,
+                 rtol=4 * np.finfo(float).eps, atol=0)
     assert fast[1] == units._dimension_key(q.dimensionality)
 
 

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 import scipy.sparse as sp
-from hypothesis import given, settings
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import cablefe
@@ -23,6 +23,8 @@ from cablefe.spec import AnalysisSettings, Material, Member, NodalLoad, Section
 from conftest import make_spec
 
 BACKENDS = linear.available_backends()
+# the verify fixture only records, so one instance may serve every example
+SHARED_FIXTURE = [HealthCheck.function_scoped_fixture]
 
 
 def random_symmetric(n, negative, seed, density):
@@ -51,10 +53,10 @@ def random_symmetric(n, negative, seed, density):
 
 
 @pytest.mark.parametrize("backend", BACKENDS)
-@settings(max_examples=25, deadline=None)
+@settings(max_examples=25, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(n=st.integers(1, 40), frac=st.floats(0.0, 1.0), density=st.floats(0.01, 0.5),
        seed=st.integers(0, 10**6))
-def test_inertia_matches_eigenvalues(backend, n, frac, density, seed):
+def test_inertia_matches_eigenvalues(verify, backend, n, frac, density, seed):
     negative = int(round(frac * n))
     K = random_symmetric(n, negative, seed, density)
     fact = make_linear_solver(backend).factorize(K)
@@ -64,30 +66,36 @@ def test_inertia_matches_eigenvalues(backend, n, frac, density, seed):
     lam = np.linalg.eigvalsh(K.toarray())
     expected = (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
     assert expected[1] == negative
-    assert fact.inertia() == expected
-    assert make_linear_solver(backend).inertia(K) == expected
+    verify.check(f"inertia (positive, negative, zero pivots) of random symmetric indefinite matrices, "
+                 f"n <= 40, {backend}: factorization and one-off count",
+                 "Sylvester's law of inertia; eigenvalue signs by numpy.linalg.eigvalsh (LAPACK dsyevd)",
+                 [fact.inertia(), make_linear_solver(backend).inertia(K)], [expected, expected])
 
 
-@settings(max_examples=15, deadline=None)
+@settings(max_examples=15, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(n=st.integers(2, 30), frac=st.floats(0.0, 1.0), seed=st.integers(0, 10**6),
        skew=st.floats(0.0, 2.0))
-def test_inertia_of_the_symmetric_part(n, frac, seed, skew):
+def test_inertia_of_the_symmetric_part(verify, n, frac, seed, skew):
     S = random_symmetric(n, int(round(frac * n)), seed, 0.3)
     W = np.random.default_rng(seed + 1).standard_normal((n, n))
     K = sp.csr_matrix(S.toarray() + skew * (W - W.T))     # symmetric part S
     # source: numpy.linalg.eigvalsh (LAPACK) of the symmetric part
     lam = np.linalg.eigvalsh(S.toarray())
-    assert make_linear_solver("superlu", symmetric=False).inertia(K) == \
-        (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
+    verify.check("inertia of random unsymmetric matrices counted on their symmetric part",
+                 "Sylvester's law of inertia; numpy.linalg.eigvalsh (LAPACK) of the symmetric part",
+                 make_linear_solver("superlu", symmetric=False).inertia(K),
+                 (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0))
 
 
-@settings(max_examples=15, deadline=None)
+@settings(max_examples=15, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(n=st.integers(1, 30), frac=st.floats(0.0, 1.0), seed=st.integers(0, 10**6))
-def test_dense_ldl_inertia(n, frac, seed):
+def test_dense_ldl_inertia(verify, n, frac, seed):
     K = random_symmetric(n, int(round(frac * n)), seed, 0.5).toarray()
     # source: numpy.linalg.eigvalsh (LAPACK dsyevd); Sylvester's law
     lam = np.linalg.eigvalsh(K)
-    assert dense_inertia(K) == (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
+    verify.check("inertia of random symmetric indefinite matrices by dense LDL^T",
+                 "Sylvester's law of inertia; numpy.linalg.eigvalsh (LAPACK dsyevd)",
+                 dense_inertia(K), (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0))
 
 
 def tiny_diagonal_pairs(n_pairs, seed, tiny=1e-14):
@@ -100,7 +108,7 @@ def tiny_diagonal_pairs(n_pairs, seed, tiny=1e-14):
 
 
 @pytest.mark.parametrize("dense_max", [linear.DENSE_INERTIA_MAX, 0])
-def test_inertia_after_row_interchanges(monkeypatch, dense_max):
+def test_inertia_after_row_interchanges(monkeypatch, dense_max, verify):
     # both fallbacks: dense LDL^T, and (dense_max = 0) other symmetric
     # orderings, whose probe must then refuse the tiny pivots: no count is
     # better than a wrong one
@@ -112,12 +120,16 @@ def test_inertia_after_row_interchanges(monkeypatch, dense_max):
     lam = np.linalg.eigvalsh(K.toarray())
     expected = (int(np.sum(lam > 0)), int(np.sum(lam < 0)), 0)
     assert expected == (20, 20, 0)
-    assert fact.inertia() == (expected if dense_max else None)
+    if dense_max:
+        verify.check("inertia of 20 permuted [[1e-14, 1], [1, 1e-14]] blocks after row interchanges",
+                     "eigenvalues 1e-14 +- 1 of each block; numpy.linalg.eigvalsh", fact.inertia(), expected)
+    else:
+        assert fact.inertia() is None
 
 
-@settings(max_examples=10, deadline=None)
+@settings(max_examples=10, deadline=None, suppress_health_check=SHARED_FIXTURE)
 @given(n=st.integers(2, 60), frac=st.floats(0.0, 1.0), seed=st.integers(0, 10**6))
-def test_inertia_by_other_orderings(n, frac, seed):
+def test_inertia_by_other_orderings(verify, n, frac, seed):
     # the fallback for matrices too large for a dense LDL^T: symmetric
     # SuperLU with other orderings.  On a strictly diagonally dominant
     # matrix every symmetric ordering factors stably without pivoting
@@ -137,7 +149,10 @@ def test_inertia_by_other_orderings(n, frac, seed):
     old = linear.DENSE_INERTIA_MAX
     try:
         linear.DENSE_INERTIA_MAX = 0
-        assert linear._fallback_inertia(fact._system, 1e-10) == expected
+        found = linear._fallback_inertia(fact._system, 1e-10)
+        assert found is not None
+        verify.check("inertia of random diagonally dominant symmetric matrices by other SuperLU orderings",
+                     "Sylvester's law of inertia; numpy.linalg.eigvalsh (LAPACK dsyevd)", found, expected)
     finally:
         linear.DENSE_INERTIA_MAX = old
 
@@ -199,7 +214,9 @@ def test_pinned_column_beyond_euler_load_is_unstable(ratio, unstable, verify):
     # every converged step counts the Euler loads below its own load
     for lam, n in zip(o.increments, o.negative_pivots):
         if min(abs(lam * P / (k * P_EULER) - 1.0) for k in (1, 3.2, 4)) > 0.05:
-            assert n == euler_modes_below(lam * P)
+            verify.check(f"pinned column at {ratio} x Euler load: negative pivots at every converged step "
+                         "= buckling loads below the step's load", "Timoshenko & Gere 1961, Theory of "
+                         "Elastic Stability, ch. 2", n, euler_modes_below(lam * P))
     warned = [w for w in o.warnings if "unstable equilibrium" in w]
     if unstable:
         # the warning names the first converged load factor beyond Euler's load
@@ -250,7 +267,7 @@ track = ["C.4"]
 
 
 @pytest.mark.parametrize("ratio", [0.9, 1.3])
-def test_column_stability_in_results_and_summary(tmp_path, capsys, ratio):
+def test_column_stability_in_results_and_summary(tmp_path, capsys, ratio, verify):
     case = tmp_path / "column.toml"
     case.write_text(COLUMN_CASE.format(force=-ratio * P_EULER))
     out = tmp_path / "out"
@@ -258,6 +275,9 @@ def test_column_stability_in_results_and_summary(tmp_path, capsys, ratio):
     text = capsys.readouterr().out
     res = json.loads((out / "results.json").read_text())["results"]["push"]
     # source: Euler load of the pinned column (Timoshenko & Gere 1961, ch. 2)
+    verify.check(f"pinned column case file at {ratio} x Euler load: negative pivots in results.json",
+                 "Timoshenko & Gere 1961, Theory of Elastic Stability, ch. 2 (pi^2 EI/L^2)",
+                 res["stability"]["negative_pivots"], 1 if ratio > 1 else 0)
     if ratio > 1:
         assert res["stability"] == {"negative_pivots": 1, "stable": False}
         assert "UNSTABLE (1 negative pivot" in text

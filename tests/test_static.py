@@ -31,13 +31,16 @@ def test_prestressed_string_with_central_point_load(verify):
         return 2 * EA * (L - L0) / L0 * u / L - P
     u = brentq(balance, 0.0, 1.0, xtol=1e-15)
     L = np.hypot(a, u)
-    assert_allclose(res.node_displacement("point", "C"), [0, 0, -u], atol=1e-10)
+    verify.check("prestressed two-bar string, central point load: displacement of the loaded node",
+                 "statics of the loaded node, P = 2 N sin(theta), N = EA (L - L0)/L0 (exact; root by brentq)",
+                 res.node_displacement("point", "C"), [0, 0, -u], atol=1e-10, unit="m")
     verify.check("prestressed two-bar string, central point load: bar tension",
                  "statics of the loaded node, P = 2 N sin(theta), N = EA (L - L0)/L0 (exact; root by brentq)",
                  res.tension("point", "L"), [EA * (L - L0) / L0] * 2, rtol=1e-9, unit="N")
     # reactions balance the load: the support pulls up by P/2 at each end
     r = res.reactions("point")
-    assert_allclose(r["A"][2] + r["B"][2], P, rtol=1e-9)
+    verify.check("prestressed two-bar string: vertical reactions sum to the load", "statics of the "
+                 "whole string", r["A"][2] + r["B"][2], P, rtol=1e-9, unit="N")
 
 
 def _parabolic_chain(n, w=2.0e3, span=100.0, sag=8.0, E=1.6e11, A=5.0e-3):
@@ -75,7 +78,7 @@ def _parabolic_chain(n, w=2.0e3, span=100.0, sag=8.0, E=1.6e11, A=5.0e-3):
     return -mid[2], -res.reactions("w")["P0"][0], res
 
 
-def test_parabolic_cable_converges_at_second_order():
+def test_parabolic_cable_converges_at_second_order(verify):
     # source: parabolic cable under w per horizontal length, H = w L^2 / (8 d),
     # support tension sqrt(H^2 + (wL/2)^2) (Irvine 1981, Cable Structures,
     # ch. 2; common practice).  A chain of bars with the load lumped at its
@@ -91,15 +94,24 @@ def test_parabolic_cable_converges_at_second_order():
         x = res["w"].state.positions[[res.model.node_index[f"P{k}"] for k in range(1, n // 2)], 0]
         P = w * span / n
         moment = (n - 1) * P / 2 * span / 2 - np.sum(P * (span / 2 - x))
-        assert_allclose(H * d, moment, rtol=1e-9)
+        verify.check("bar chains (4 to 32 bars) cut from a parabolic cable, span 100 m, lumped loads: "
+                     "thrust x mid sag = midspan moment of the simply supported span",
+                     "statics of the lumped chain (funicular polygon; Irvine 1981, Cable Structures, ch. 2)",
+                     H * d, moment, rtol=1e-9, unit="N m")
         errs.append(abs(d - sag) / sag)
     rate = -np.polyfit(np.log(ns), np.log(errs), 1)[0]
-    assert_allclose(rate, 2.0, atol=0.1)
-    assert errs[-1] < 1e-3
+    verify.check("same bar chains: order of convergence of the mid sag to the parabola's 8 m",
+                 "Irvine 1981, Cable Structures, ch. 2 (H = wL^2/8d); lumped load as the midpoint rule "
+                 "(common practice)", rate, 2.0, atol=0.1)
+    # the loop's last pass: 32 bars
+    verify.check("same cable as 32 bars: mid sag vs the parabola's", "Irvine 1981, Cable Structures, ch. 2 "
+                 "(H = wL^2/8d; common practice)", d, sag, rtol=1e-3, unit="m")
     # the reaction of the finest chain approaches the support tension
     H_exact = w * span**2 / (8 * sag)
     r = res.reactions("w")["P0"]
-    assert_allclose(np.hypot(r[0], r[2]), np.hypot(H_exact, w * span / 2 * (1 - 1 / 32)), rtol=2e-3)
+    verify.check("same cable as 32 bars: support reaction vs sqrt(H^2 + (wL/2)^2) (less the lumped end load)",
+                 "Irvine 1981, Cable Structures, ch. 2 (common practice)", np.hypot(r[0], r[2]),
+                 np.hypot(H_exact, w * span / 2 * (1 - 1 / 32)), rtol=2e-3, unit="N")
 
 
 def test_divided_catenary_is_exact_and_bar_chain_converges_to_it():
@@ -181,7 +193,7 @@ def test_heavy_model_is_invariant_under_rotation_about_gravity(angle, shift):
     assert_allclose(moved.member_forces("p").tension, base.member_forces("p").tension, rtol=1e-7, atol=1e-6)
 
 
-def test_temperature_and_support_movement_of_a_tie():
+def test_temperature_and_support_movement_of_a_tie(verify):
     # source: linear thermoelasticity of a restrained bar, N = -EA alpha dT
     # (Timoshenko & Goodier 1951, Theory of Elasticity, ch. 14), here with the
     # geometrically exact strain; and a support moved along the tie adds
@@ -196,8 +208,12 @@ def test_temperature_and_support_movement_of_a_tie():
     res = cablefe.solve(cablefe.build_model(spec))
     L0 = 10.0 / (1 + 50e3 / EA)
     L0c = L0 * (1 - 1.2e-5 * 20)
-    assert_allclose(res.tension("cold", "T")[0], EA * (10.0 - L0c) / L0c, rtol=1e-10)
-    assert_allclose(res.tension("pull", "T")[0], EA * (10.004 - L0) / L0, rtol=1e-10)
+    source = ("linear thermoelasticity of a restrained bar (Timoshenko & Goodier 1951, Theory of "
+              "Elasticity, ch. 14) with the strain N = EA (L - L0)/L0 (exact)")
+    verify.check("pretensioned 10 m tie between fixed supports, cooled by 20 K: tension", source,
+                 res.tension("cold", "T")[0], EA * (10.0 - L0c) / L0c, rtol=1e-10, unit="N")
+    verify.check("same tie, one support pulled 4 mm along it: tension", source,
+                 res.tension("pull", "T")[0], EA * (10.004 - L0) / L0, rtol=1e-10, unit="N")
     assert_allclose(res.node_displacement("pull", "B"), [0.004, 0, 0], atol=1e-14)
 
 
@@ -213,7 +229,7 @@ def test_missing_support_is_reported_as_a_mechanism():
     assert "B y" in r.outcome.message and "B z" in r.outcome.message
 
 
-def test_statically_determinate_support_movement_moves_rigidly():
+def test_statically_determinate_support_movement_moves_rigidly(verify):
     # source: kinematics; a statically determinate structure follows a support
     # movement as a rigid body with no force (any statics text, e.g.
     # Hibbeler, Structural Analysis, ch. 2; common practice).  All forces are
@@ -227,11 +243,13 @@ def test_statically_determinate_support_movement_moves_rigidly():
     assert res.all_converged
     # B slides along x keeping the bar's length: (6 + u - dx)^2 + (8 - dy)^2 = 10^2
     u = np.sqrt(100 - (8 - d[1]) ** 2) - 6 + d[0]
-    assert_allclose(res.node_displacement("move", "B"), [u, 0, 0], atol=1e-9)
-    assert_allclose(res.tension("move", "T"), [0.0, 0.0], atol=1e-3)
+    source = "kinematics of a statically determinate structure (Hibbeler, Structural Analysis, ch. 2; common practice)"
+    verify.check("bar on a pin and a roller, the pin moved by (12.3, 7.1) mm: roller slides keeping the "
+                 "bar's length", source, res.node_displacement("move", "B"), [u, 0, 0], atol=1e-9, unit="m")
+    verify.check("same bar: no force", source, res.tension("move", "T"), [0.0, 0.0], atol=1e-3, unit="N")
 
 
-def test_cantilever_follows_a_rotated_clamp_without_force():
+def test_cantilever_follows_a_rotated_clamp_without_force(verify):
     # source: kinematics of a rigid rotation (common practice): a cantilever
     # whose clamp turns by theta about z swings as a rigid body, tip at
     # L (cos theta, sin theta, 0), with no internal force.
@@ -244,5 +262,6 @@ def test_cantilever_follows_a_rotated_clamp_without_force():
                      sections=sec)
     res = cablefe.solve(cablefe.build_model(spec))
     assert res.all_converged
-    assert_allclose(res.node_displacement("turn", "B"), [L * (np.cos(theta) - 1), L * np.sin(theta), 0],
-                    atol=1e-9)
+    verify.check("cantilever 7.3 m whose clamp turns 0.0137 rad about z: tip at L (cos theta, sin theta, 0)",
+                 "kinematics of a rigid rotation (common practice)", res.node_displacement("turn", "B"),
+                 [L * (np.cos(theta) - 1), L * np.sin(theta), 0], atol=1e-9, unit="m")

@@ -120,7 +120,7 @@ solver = "superlu"
 """, xs
 
 
-def test_influence_lines_of_a_simply_supported_beam_match_closed_forms():
+def test_influence_lines_of_a_simply_supported_beam_match_closed_forms(verify):
     """Unloaded beam: the tangent is the linear stiffness, so the influence
     lines are Müller-Breslau's.  Midspan deflection for a unit load at a
     (b = L - a), for c <= a: y(c) = b c (L^2 - b^2 - c^2) / (6 E I L), and by
@@ -138,11 +138,15 @@ def test_influence_lines_of_a_simply_supported_beam_match_closed_forms():
     a = xs
     b = L - a
     y = np.where(c <= a, b * c * (L**2 - b**2 - c**2), a * (L - c) * (L**2 - a**2 - (L - c)**2)) / (6 * EI * L)
-    assert_allclose(infl.values[names["B4 uz"]], -y, rtol=1e-9, atol=1e-9 * y.max())
-    assert_allclose(infl.values[names["B0 Rz"]], (L - a) / L, rtol=1e-9, atol=1e-9)
+    verify.check("influence line of the midspan deflection of a simply supported 8 m beam (unit load)",
+                 "Müller-Breslau; Gere & Timoshenko, Mechanics of Materials, appendix G, simple beam with a "
+                 "concentrated load (from memory)", infl.values[names["B4 uz"]], -y, rtol=1e-9,
+                 atol=1e-9 * y.max(), unit="m/N")
+    verify.check("influence line of the left reaction of the same beam, (L - a)/L",
+                 "Müller-Breslau; statics", infl.values[names["B0 Rz"]], (L - a) / L, rtol=1e-9, atol=1e-9)
 
 
-def test_influence_line_of_the_middle_reaction_of_a_two_span_beam():
+def test_influence_line_of_the_middle_reaction_of_a_two_span_beam(verify):
     """Two equal spans L: releasing the middle support, compatibility of the
     simply supported 2L beam (flexibility method; e.g. Hibbeler, Structural
     Analysis, influence lines of statically indeterminate beams) gives
@@ -156,7 +160,9 @@ def test_influence_line_of_the_middle_reaction_of_a_two_span_beam():
     L = 8.0
     a = np.minimum(xs, 2 * L - xs)
     expected = a * (3 * L**2 - a**2) / (2 * L**3)
-    assert_allclose(infl.values[infl.names.index("B8 Rz")], expected, rtol=1e-9, atol=1e-9)
+    verify.check("influence line of the middle reaction of a beam over two 8 m spans, a (3L^2 - a^2)/2L^3",
+                 "flexibility method (e.g. Hibbeler, Structural Analysis, influence lines of statically "
+                 "indeterminate beams)", infl.values[infl.names.index("B8 Rz")], expected, rtol=1e-9, atol=1e-9)
 
 
 # -- worst patches ---------------------------------------------------------------------
@@ -228,7 +234,7 @@ def test_sweep_equals_the_same_positions_solved_as_combinations(tmp_path):
 
 # -- tolerance ---------------------------------------------------------------------------------
 
-def test_tolerance_scatter_matches_first_order_propagation(tmp_path):
+def test_tolerance_scatter_matches_first_order_propagation(tmp_path, verify):
     """Standard deviation of tensions against the law of propagation of
     uncertainty for independent inputs, u_c^2 = sum (dT/dL0_i)^2 u_i^2
     (JCGM 100:2008, GUM, eq. 10), with dT/dL0_i by central differences of
@@ -259,7 +265,14 @@ def test_tolerance_scatter_matches_first_order_propagation(tmp_path):
         grads.append((up.max_tension - down.max_tension) / (2 * h))
     predicted = np.sqrt(np.sum((np.array(grads) * sigma) ** 2, axis=0))
     ratio = (n - 1) * out.statistics["std_tension"] ** 2 / predicted**2
-    assert np.all(ratio >= chi2.ppf(0.0005, n - 1)) and np.all(ratio <= chi2.ppf(0.9995, n - 1)), ratio
+    lo, hi = chi2.ppf(0.0005, n - 1), chi2.ppf(0.9995, n - 1)
+    # the two-sided interval [lo, hi] as its midpoint +- its half-width
+    verify.check("60 samples of 2 mm length errors on a deck's cables: (n - 1) s^2 / u_c^2 of the watched "
+                 "tensions inside the two-sided 99.9 % chi-square interval (shown: its midpoint)",
+                 "JCGM 100:2008, GUM, eq. 10 (u_c by central differences of nonlinear solves); "
+                 "Montgomery & Runger, Applied Statistics and Probability for Engineers, sec. 8.4; "
+                 "scipy.stats.chi2", ratio, np.full(ratio.shape, 0.5 * (lo + hi)), rtol=0,
+                 atol=0.5 * (hi - lo))
 
     # the statistics in envelope.json, recomputed with numpy from samples.csv
     write_study(out, m, tmp_path)
@@ -270,12 +283,17 @@ def test_tolerance_scatter_matches_first_order_propagation(tmp_path):
     for mem in ("H2", "H3", "MC0"):
         T = np.array([float(r[f"{mem} tension"]) for r in rows])
         e = env["members"][mem]
-        assert_allclose(e["mean_tension"], T.mean(), rtol=1e-12)
-        assert_allclose(e["std_tension"], T.std(ddof=1), rtol=1e-9)
-        assert_allclose([e["p05_tension"], e["p95_tension"]], np.percentile(T, [5, 95]), rtol=1e-12)
-        assert_allclose([e["max_tension"]], [T.max()], rtol=1e-12)
+        verify.check("tolerance study envelope.json: mean, 5 % and 95 % percentiles and largest tension "
+                     "of each watched member, from samples.csv", "numpy mean, percentile and max",
+                     [e["mean_tension"], e["p05_tension"], e["p95_tension"], e["max_tension"]],
+                     [T.mean(), *np.percentile(T, [5, 95]), T.max()], rtol=1e-12)
+        verify.check("tolerance study envelope.json: standard deviation of each watched member's tension",
+                     "numpy std with ddof = 1 (sample standard deviation)", e["std_tension"],
+                     T.std(ddof=1), rtol=1e-9)
     uz = np.array([float(r["D3 uz"]) for r in rows])
-    assert_allclose(env["nodes"]["D3"]["std_displacement"][2], uz.std(ddof=1), rtol=1e-9)
+    verify.check("tolerance study envelope.json: standard deviation of a watched node's vertical displacement",
+                 "numpy std with ddof = 1 (sample standard deviation)",
+                 env["nodes"]["D3"]["std_displacement"][2], uz.std(ddof=1), rtol=1e-9)
 
 
 # -- execution: in-process, local processes, Dask ------------------------------------
