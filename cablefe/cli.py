@@ -374,7 +374,15 @@ def cmd_modes(args, model=None, results=None, shown_folder=None) -> int:
         from .errors import CaseError
         raise CaseError("modes", "the case has no [modes] table").with_file(str(args.case))
     try:
-        found, written = run_modes(model, Path(args.output), results, args.solver)
+        if alone:
+            # added to the folder's set: the files of an earlier run stay
+            from .io.atomic import ResultFolder
+            folder = ResultFolder(Path(args.output), keep_others=True).check()
+            with folder:
+                found, staged = run_modes(model, folder.staging, results, args.solver)
+                written = [folder.final(p) for p in staged]
+        else:
+            found, written = run_modes(model, Path(args.output), results, args.solver)
     except ModesError as exc:
         print(f"cablefe: {args.case}: modes: {exc}", file=sys.stderr)
         return 1 if isinstance(exc, NotConverged) else 2
@@ -404,10 +412,15 @@ def _study_summary(done, units) -> None:
 
 
 def cmd_study(args) -> int:
+    from .io.atomic import ResultFolder
     from .studies.command import study_case
     t0 = time.perf_counter()
-    results, done, written = study_case(args.case, args.output, args.only, args.workers, args.scheduler, args.solver,
-                                  sys.stderr if sys.stderr.isatty() else None)
+    # one set: results.json (the base results and the studies' summary) and studies/
+    folder = ResultFolder(Path(args.output)).check()
+    with folder:
+        results, done, staged = study_case(args.case, folder.staging, args.only, args.workers, args.scheduler,
+                                           args.solver, sys.stderr if sys.stderr.isatty() else None)
+        written = [folder.final(p) for p in staged]
     print(f"ran {len(done.summary)} study(ies) in {time.perf_counter() - t0:.2f} s")
     _study_summary(done, results.model.spec.units)
     print(f"wrote {', '.join(str(p) for p in written[:3])}" + (" …" if len(written) > 3 else ""))

@@ -371,3 +371,43 @@ def test_folders_of_a_set_replace_the_previous_sets_and_keep_a_users(tmp_path):
         (f.staging / "results.json").write_text("{}")
     assert not (out / "studies").exists() and kept[0].exists()
     assert sorted(p.name for p in out.iterdir() if not p.name.startswith(".")) == sorted(["results.json", kept[0].name])
+
+
+def test_section_diameters_reach_the_member_lookup_and_the_meshes(tmp_path):
+    # hanger_deck.toml: main cables 70 mm, hangers 18 mm, a deck beam with none
+    import csv
+    out = tmp_path / "out"
+    assert main(["run", str(CASES / "hanger_deck.toml"), "-o", str(out)]) in (0, 1)
+    rows = {r["member"]: r for r in csv.DictReader(open(out / "members.csv"))}
+    by_section = {r["section"]: r["diameter_m"] for r in rows.values()}
+    assert by_section["main"] == "0.07" and by_section["hanger"] == "0.018" and by_section["deck"] == ""
+    vtu = next(p for p in out.glob("*.vtu"))
+    mesh = meshio.read(vtu)
+    diameter = mesh.cell_data["diameter"][0]
+    section = np.array([r["section"] for r in sorted(rows.values(), key=lambda r: int(r["index"]))])
+    cells = section[mesh.cell_data["member"][0]]
+    # 18 mm and 70 mm in m (the case's length unit), to the round-off of the unit conversion
+    np.testing.assert_allclose(diameter[cells == "hanger"], 0.018, rtol=1e-12)
+    np.testing.assert_allclose(diameter[cells == "main"], 0.07, rtol=1e-12)
+    assert np.all(np.isnan(diameter[cells == "deck"]))
+
+
+def test_modes_alone_adds_to_the_folder_set_and_study_alone_replaces_it(tmp_path):
+    # cablefe modes -o OUT beside a solve: its files join OUT's manifest and
+    # the solve's stay; cablefe study -o OUT writes its own set (results.json
+    # of the base results and studies/), so the solve's meshes leave
+    case = CASES / "generated-arch.toml"
+    out = tmp_path / "out"
+    assert main(["solve", str(case), "-o", str(out)]) in (0, 1)
+    solved = set(json.loads((out / MANIFEST).read_text())["files"])
+    assert "results.json" in solved and any(n.endswith(".vtu") for n in solved)
+    assert main(["modes", str(case), "-o", str(out)]) == 0
+    listed = set(json.loads((out / MANIFEST).read_text())["files"])
+    assert listed == solved | {"modes.json", "modes.vtu", "modes.pvd", "modes.png"}
+    assert all((out / n).exists() for n in listed)
+    assert not [p for p in out.iterdir() if p.name.startswith(".cablefe-")and p.name != MANIFEST]
+    assert main(["study", str(case), "-o", str(out), "--workers", "1"]) in (0, 1)
+    listed = set(json.loads((out / MANIFEST).read_text())["files"])
+    assert listed == {"results.json", "studies"}
+    assert sorted(p.name for p in out.iterdir() if p.name != MANIFEST) == ["results.json", "studies"]
+    assert (out / "studies").is_dir() and any((out / "studies").rglob("envelope.json"))

@@ -22,7 +22,7 @@ def _overview() -> str:
     lines.append("\nexamples:")
     for fam in families().values():
         lines.append(f"  {fam.examples[0]}")
-    lines.append('  cablefe new suspension --span "80 m" --sag "8 m" -o bridge.toml')
+    lines.append('  cablefe new suspension --span "80 m" --sag "8 m" --tower-height "14 m" -o bridge.toml')
     lines.append("  cablefe new suspension --help      # the parameters of one family, explained")
     lines.append("\nThe numbers written are placeholders to be checked by a licensed engineer.")
     return "\n".join(lines)

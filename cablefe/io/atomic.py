@@ -291,13 +291,18 @@ class ResultFolder:
     Parameters
     ----------
     folder : path of the output folder (created if missing)
+    keep_others : the files of the previous set that this one does not
+        write stay in place and in the manifest (a command that adds to a
+        folder, such as ``cablefe modes`` beside the results of ``run``);
+        by default the new set replaces the previous one as a whole
     """
 
     # written last: a reader that sees the new results.json sees the new meshes
     LAST = ("results.pvd", "results.json")
 
-    def __init__(self, folder):
+    def __init__(self, folder, keep_others: bool = False):
         self.folder = Path(folder)
+        self.keep_others = keep_others
         self.staging: Path | None = None
         self.committed: list[Path] = []
 
@@ -328,8 +333,14 @@ class ResultFolder:
         raise FileExistsError(f"no free staging name in {self.folder}")
 
     def final(self, path) -> Path:
-        """The final path of a file written into the staging folder."""
-        return self.folder / Path(path).name
+        """The final path of a file written into the staging folder (also in a subfolder of it)."""
+        path = Path(path)
+        if self.staging is not None:
+            try:
+                return self.folder / path.relative_to(self.staging)
+            except ValueError:
+                pass
+        return self.folder / path.name
 
     def commit(self) -> list[Path]:
         """Move the staged files into place and remove the previous set's other files.
@@ -369,15 +380,16 @@ class ResultFolder:
                 os.replace(p, target)
             for p in files:
                 os.replace(p, self.folder / p.name)
-            for name in set(old) - set(new):
+            for name in (set() if self.keep_others else set(old) - set(new)):
                 target = self.folder / name
                 if target.is_file() and not target.is_symlink():
                     with contextlib.suppress(FileNotFoundError):
                         target.unlink()
                 elif target.is_dir() and not target.is_symlink():
                     shutil.rmtree(target, ignore_errors=True)
+            listed = sorted(set(old) | set(new)) if self.keep_others else new
             write_text(self.folder / MANIFEST, json.dumps(
-                {"writer": "cablefe", "state": "complete", "files": new}, indent=1))
+                {"writer": "cablefe", "state": "complete", "files": listed}, indent=1))
         self.committed = [self.folder / n for n in sorted(new, key=lambda n: n != "results.json")]
         self.discard()
         return self.committed

@@ -118,7 +118,7 @@ from ..patterns import PatternIndex
 from ..spec import CaseSpec, Material, Section, SelfWeight
 from .units import STANDARD_GRAVITY, Quantities, describe_value, unit_system
 # the base names other readers and tests take from here are re-exported too
-from .case_base import (CONTROLS, interior_node_ids, key_join, MATERIAL_KEYS, MAX_COORDINATE, MAX_DOFS,
+from .case_base import (checked_sign, CONTROLS, interior_node_ids, key_join, MATERIAL_KEYS, MAX_COORDINATE, MAX_DOFS,
                         MAX_ELEMENTS, NODE_TABLE_KEYS, NOT_IMPLEMENTED, PASS_THROUGH_KEYS, SECTION_KEYS,
                         SHAPE_METHODS, solver_unavailable, SOLVERS, TOP_LEVEL_KEYS, _check_keys, _integer,
                         _interior_positions, _name, _number_array, _require, _show, _string, _string_array,
@@ -305,12 +305,7 @@ class _Reader(MemberTables, LoadTables):
     # -- quantities ---------------------------------------------------------
     def quantity(self, value, kind, key, sign: str | None = None) -> float:
         """SI value; ``sign`` is None, "positive" or "nonnegative"."""
-        result = self.q.to_si(value, kind, key)
-        if sign == "positive" and not result > 0.0:
-            raise CaseError(key, f"expected a positive value, found {_show(value)}")
-        if sign == "nonnegative" and result < 0.0:
-            raise CaseError(key, f"expected a value >= 0, found {_show(value)}")
-        return result
+        return checked_sign(self.q.to_si(value, kind, key), sign, key, _show(value))
 
     def optional(self, table, name, kind, key, sign=None, default=None):
         if name not in table:

@@ -147,6 +147,27 @@ def _integer(value: Any, key: str, minimum: int) -> int:
     return int(value)
 
 
+def checked_sign(value: float, sign: str | None, key: str, shown: str) -> float:
+    """``value`` when it has the ``sign`` asked for (None, "positive" or
+    "nonnegative"), else a CaseError at ``key`` showing the input ``shown``."""
+    if sign == "positive" and not value > 0.0:
+        raise CaseError(key, f"expected a positive value, found {shown}")
+    if sign == "nonnegative" and value < 0.0:
+        raise CaseError(key, f"expected a value >= 0, found {shown}")
+    return value
+
+
+def result_reference(table: Mapping, name: str, key: str, results: Sequence[str], what: str) -> str | None:
+    """``table[name]`` when it names one of ``results`` (None when absent)."""
+    if name not in table:
+        return None
+    value = table[name]
+    if not isinstance(value, str) or value not in results:
+        raise CaseError(key_join(key, name), f"expected the name of {what} "
+                        f"(known: {', '.join(results) or 'none'}), found {describe_value(value)}")
+    return value
+
+
 def _require(table: Mapping, name: str, key: str, what: str) -> Any:
     if name not in table:
         raise CaseError(key_join(key, name), f"missing: {what}")

@@ -28,6 +28,7 @@ from typing import Any, Mapping, Sequence
 from ..errors import CaseError
 from ..patterns import match_ids
 from ..spec import Catalogue, CatalogueSection, DesignSpec, DESIGN_DEFAULTS, Material, Member, SizeGroup
+from .case_base import _check_keys as _keys, _table, result_reference
 from .units import Quantities, describe_value
 
 DESIGN_KEYS = ("results", "members", "cable_factor", "min_tension", "deflection_limit", "yield_factor",
@@ -39,19 +40,6 @@ _KINDS = {"area": "area", "breaking_load": "force", "weight": "force_per_length"
           "Iy": "second_moment", "Iz": "second_moment", "J": "second_moment",
           "Wy": "section_modulus", "Wz": "section_modulus"}
 _HEADER = re.compile(r"\s*([A-Za-z_][A-Za-z0-9_]*)\s*(?:\[(.*)\])?\s*\Z")
-
-
-def _keys(table: Mapping, key: str, known: Sequence[str]) -> None:
-    for name in table:
-        if name not in known:
-            where = f"{key}.{name}" if key else name
-            raise CaseError(where, f"unknown key (known: {', '.join(known)})")
-
-
-def _table(value, key, what="a table") -> Mapping:
-    if not isinstance(value, Mapping):
-        raise CaseError(key, f"expected {what}, found {describe_value(value)}")
-    return value
 
 
 def _patterns(value, key) -> tuple[str, ...]:
@@ -133,12 +121,7 @@ def read_design(data: Mapping[str, Any], q: Quantities, materials: Mapping[str, 
         bad = "yield_factor" if values.get("yield_factor", 1.0) < 1.0 else "cable_factor"
         raise CaseError(f"{key}.{bad}", f"expected a factor >= 1, found {design[bad]!r}")
     placeholders = tuple(n for n in DESIGN_DEFAULTS if n not in values)
-    permanent = None
-    if "permanent" in design:
-        permanent = design["permanent"]
-        if not isinstance(permanent, str) or permanent not in names:
-            raise CaseError(f"{key}.permanent", f"expected the name of a result holding the permanent state "
-                                                f"(known: {', '.join(names) or 'none'}), found {describe_value(permanent)}")
+    permanent = result_reference(design, "permanent", key, names, "a result holding the permanent state")
     span = None
     if "span" in design:
         span = q.to_si(design["span"], "length", f"{key}.span")

@@ -26,6 +26,7 @@ from typing import Any, Mapping
 from ..dynamics.pedestrians import CONSTANTS
 from ..errors import CaseError
 from ..spec import AddedMass, ModesSpec, PedestrianSpec
+from .case_base import _check_keys as _base_check_keys, checked_sign
 from .units import _NUMBER_UNIT, _UnitTextError, _unit_info, describe_value
 
 MODES_KEYS = ("about", "count", "masses", "mass_matrix", "pedestrians")
@@ -59,8 +60,7 @@ _CONSTANT_FORMS = {
 
 
 def _check_keys(table: Mapping, key: str, known) -> None:
-    from .case import _check_keys as check
-    check(table, key, tuple(known))
+    _base_check_keys(table, key, tuple(known))
 
 
 def si_value(value: Any, kind: str, key: str) -> float:
@@ -103,11 +103,7 @@ class ModesReader:
             x = si_value(value, kind, key)
         else:
             x = self.r.quantity(value, kind, key)
-        if sign == "positive" and not x > 0.0:
-            raise CaseError(key, f"expected a positive value, found {value!r}")
-        if sign == "nonnegative" and x < 0.0:
-            raise CaseError(key, f"expected a value >= 0, found {value!r}")
-        return x
+        return checked_sign(x, sign, key, repr(value))
 
     def read(self, value) -> ModesSpec:
         from .case import _integer, _string, _table

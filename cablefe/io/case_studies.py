@@ -15,6 +15,7 @@ import numpy as np
 from ..errors import CaseError
 from ..patterns import is_pattern, match_indices
 from ..spec import StudySpec
+from .case_base import _integer, _require, result_reference
 from .units import describe_value
 
 KINDS = ("influence", "patch", "sweep", "tolerance")
@@ -73,13 +74,8 @@ def _study(reader, entry: Mapping, key: str, results: Sequence[str]) -> StudySpe
             owners = [k for k, keys in KIND_KEYS.items() if name_ in keys]
             raise CaseError(f"{key}.{name_}", f'"{name_}" does not apply to kind "{kind}" '
                             f"(only to {', '.join(owners)})")
-    base = None
-    if "base" in entry:
-        base = entry["base"]
-        if not isinstance(base, str) or base not in results:
-            raise CaseError(f"{key}.base", f"expected the name of a result the case solves "
-                            f"(known: {', '.join(results) or 'none'}), found {describe_value(base)}")
-    elif not results:
+    base = result_reference(entry, "base", key, results, "a result the case solves")
+    if base is None and not results:
         raise CaseError(f"{key}.base", "the case solves no result to start the study from (add loads)")
     watch = _watch(reader, entry["watch"], f"{key}.watch") if "watch" in entry else None
     fields: dict[str, Any] = {}
@@ -101,12 +97,8 @@ def _study(reader, entry: Mapping, key: str, results: Sequence[str]) -> StudySpe
         fields["load"] = _nonzero(reader.q.vector(entry["load"], unit, f"{key}.load"), f"{key}.load",
                                   entry["load"])
     if kind == "sweep":
-        if "steps" not in entry:
-            raise CaseError(f"{key}.steps", "missing: the number of positions along the lane (>= 2)")
-        steps = entry["steps"]
-        if isinstance(steps, bool) or not isinstance(steps, int) or steps < 2:
-            raise CaseError(f"{key}.steps", f"expected an integer >= 2, found {describe_value(steps)}")
-        fields["steps"] = steps
+        fields["steps"] = _integer(_require(entry, "steps", key, "the number of positions along the lane (>= 2)"),
+                                   f"{key}.steps", 2)
         if "length" in entry:
             length = reader.quantity(entry["length"], "length", f"{key}.length", "positive")
             total = _lane_length(reader, fields["path"], fields["path_pattern"])
@@ -122,12 +114,8 @@ def _study(reader, entry: Mapping, key: str, results: Sequence[str]) -> StudySpe
         value, relative = _length_or_ratio(reader, entry[given[0]], f"{key}.{given[0]}")
         fields[given[0]] = value
         fields["relative"] = relative
-        if "samples" not in entry:
-            raise CaseError(f"{key}.samples", "missing: the number of Monte Carlo samples (>= 2)")
-        samples = entry["samples"]
-        if isinstance(samples, bool) or not isinstance(samples, int) or samples < 2:
-            raise CaseError(f"{key}.samples", f"expected an integer >= 2, found {describe_value(samples)}")
-        fields["samples"] = samples
+        fields["samples"] = _integer(_require(entry, "samples", key, "the number of Monte Carlo samples (>= 2)"),
+                                     f"{key}.samples", 2)
         seed = entry.get("seed", 0)
         if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
             raise CaseError(f"{key}.seed", f"expected an integer >= 0, found {describe_value(seed)}")

@@ -1,4 +1,4 @@
-"""Arc-length path following through limit points (Crisfield's cylindrical method).
+"""Arc-length path following through limit points (Crisfield's method, cylindrical or spherical).
 
 Load control (:func:`cablefe.solvers.newton.follow_load_path`) prescribes the
 load factor λ and cannot pass a maximum of the load: beyond a limit point
@@ -37,6 +37,12 @@ chosen so that it continues the previous step (positive work
 ``Δu_prev · δu_t``), or so that λ grows towards the target on the first
 step.  Where the tangent there is exactly singular, the previous increment
 is used as a secant predictor.
+
+With a load weight ``ψ > 0`` (``load_weight``) the constraint is the
+sphere ``||Δu||² + ψ² Δλ² = Δl²`` instead, which also passes stretches
+where the displacements stand still while λ moves; the static analysis
+(``[analysis] control = "arc-length"``) uses the sphere with ``ψ = 1``,
+the function's default is the cylinder (``ψ = 0``).
 
 The norm mixes translations (m) and rotations (rad) of the unknowns
 unweighted; models with beams whose rotations are large compared with the
