@@ -50,3 +50,39 @@ def test_plain_members_read_in_bulk_as_the_full_check_reads_them(monkeypatch):
         monkeypatch.undo()
         assert bulk.members == full.members
         assert bulk == full
+
+
+def test_modified_newton_near_the_solution_lands_on_the_same_state_with_fewer_factorisations(monkeypatch):
+    # near the solution the last factorisation serves (modified Newton, the
+    # chord method: Kelley 1995, Iterative Methods for Linear and Nonlinear
+    # Equations, ch. 5, from memory); the equilibrium is the same unique one,
+    # met to the same residual test, so positions agree far below 1e-6 m
+    path = ROOT / "cases" / "saddle_net.toml"
+    made = []
+    original_factorize = static.StaticProblem._factorize
+
+    def counted(self, K):
+        before = self._factorized
+        fact = original_factorize(self, K)
+        made.append(self._factorized is not before)
+        return fact
+
+    def solve(ratio):
+        original = newton.follow_load_path
+        made.clear()
+
+        def patched(problem, settings=newton.NewtonSettings(), progress=None):
+            return original(problem, dataclasses.replace(settings, modified_ratio=ratio), progress)
+        monkeypatch.setattr(static, "follow_load_path", patched)
+        monkeypatch.setattr(static.StaticProblem, "_factorize", counted)
+        out = cablefe.solve(cablefe.load_model(path))
+        monkeypatch.setattr(static, "follow_load_path", original)
+        return out, sum(made)
+
+    full, full_count = solve(0.0)
+    chord, chord_count = solve(1e-4)
+    for name in ("snow", "uplift"):
+        assert chord[name].converged and full[name].converged
+        assert chord[name].outcome.negative_pivots == full[name].outcome.negative_pivots
+        assert_allclose(chord[name].state.positions, full[name].state.positions, rtol=0, atol=1e-6)
+    assert chord_count < full_count

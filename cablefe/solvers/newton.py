@@ -20,7 +20,7 @@ The driver sees a *problem*: an object with
 
 The problem may also carry ``roundoff``: the force (N) below which its
 residual cannot be computed reliably (round-off of stiff members), 0 if
-absent, and two optional methods:
+absent, and three optional methods:
 
 ``inertia(K, factorized_only=False)``
     ``(positive, negative, zero)`` eigenvalue counts of the (symmetric part
@@ -29,6 +29,9 @@ absent, and two optional methods:
     ``solve_linear`` gives it without more work (the iterations' check).
 ``observe(state, lam)``
     what to record of each converged step (``PathOutcome.path``).
+``solve_again(r)``
+    ``K_last^-1 r`` with the last factorisation made by ``solve_linear``, or
+    None when there is none: modified Newton steps near the solution.
 
 Stability is measured on every factorised tangent: the negative pivots
 (eigenvalues) of the tangent at each converged state are kept in
@@ -84,6 +87,7 @@ class NewtonSettings:
     max_total_cuts: int = 40           # increment cuts of the whole load path (a budget per result)
     whole_load_first: bool = True      # try the whole load in one increment before 1/increments
     stability: bool = True             # count the negative pivots at each converged state
+    modified_ratio: float = 1e-4       # below this relative residual, step with the last factorisation
 
 
 @dataclass(frozen=True)
@@ -260,6 +264,15 @@ def negative_pivots(problem, K) -> int | None:
     return None if found is None else int(found[1])
 
 
+#: a modified Newton step (with the last factorisation, below
+#: ``NewtonSettings.modified_ratio``) must cut the residual at least this
+#: much, or the rest of the increment factorises again: near the solution
+#: the old tangent differs from the new by the last small corrections, and
+#: modified Newton contracts by about that relative difference (Kelley 1995,
+#: Iterative Methods for Linear and Nonlinear Equations, SIAM, ch. 5, the
+#: chord method, from memory).
+MODIFIED_CONTRACTION = 0.1
+
 #: the negative pivots of the last iteration's tangent stand for those of
 #: the converged state when that iteration's relative residual was below
 #: this (Newton's quadratic convergence: the last correction is of the
@@ -387,6 +400,11 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
     roundoff = float(getattr(problem, "roundoff", 0.0))
     indefinite = False
     known = None      # negative pivots of the last factorised tangent, when it may stand for the next state's
+    # modified Newton near the solution: the last factorisation serves while
+    # each of its steps cuts the residual tenfold (see MODIFIED_CONTRACTION)
+    again = getattr(problem, "solve_again", None)
+    factorised = False
+    reuse = again is not None and settings.modified_ratio > 0.0
     for it in range(limit + 1):
         history.append(ratio)
         if not math.isfinite(ratio):
@@ -398,18 +416,29 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
             break
         if patience is not None and it >= patience and not ratio < 0.1 * history[-2]:
             return _Step(state, False, it, ratio, "slow", history=history, indefinite=indefinite)
-        try:
-            du = -problem.solve_linear(K, r)
-        except MechanismError as exc:
-            return _Step(state, False, it, ratio, "mechanism", mechanism=exc, history=history)
+        modified = reuse and factorised and ratio <= settings.modified_ratio
+        du = again(r) if modified else None
+        if du is None:
+            modified = False
+            try:
+                du = -problem.solve_linear(K, r)
+            except MechanismError as exc:
+                return _Step(state, False, it, ratio, "mechanism", mechanism=exc, history=history)
+            factorised = True
+        else:
+            du = -du
         if not np.all(np.isfinite(du)):
             return _Step(state, False, it, ratio, "non-finite", history=history)
-        negatives = _iterate_pivots(problem, K)
-        indefinite |= _indefinite(negatives, du, r)
-        known = 0 if negatives == 0 and ratio <= PIVOT_REUSE_RATIO else None
+        if not modified:
+            negatives = _iterate_pivots(problem, K)
+            indefinite |= _indefinite(negatives, du, r)
+            known = 0 if negatives == 0 and ratio <= PIVOT_REUSE_RATIO else None
         if indefinite and stop_on_indefinite:
             return _Step(state, False, it + 1, ratio, "indefinite", history=history, indefinite=True)
+        before = ratio
         state, r, ref, K, ratio, alpha = _line_search(problem, state, du, r, ratio, lam, settings)
+        if modified and not ratio <= MODIFIED_CONTRACTION * before:
+            reuse = False     # too slow: a new factorisation from here on
         if track is not None:
             track.append((du, alpha, r0))
     return _Step(state, False, limit, ratio, "max-iterations", history=history)

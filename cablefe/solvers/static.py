@@ -239,6 +239,16 @@ class StaticProblem:
                 eqs = linear.find_unrestrained(K)
             raise MechanismError([self.model.describe_dof(int(self.free[e])) for e in eqs]) from None
 
+    def solve_again(self, r):
+        """``K_last^-1 r`` with the last factorisation made, or None (modified Newton)."""
+        last = self._factorized
+        if last is None:
+            return None
+        try:
+            return last[3].solve(r)
+        except linear.SingularMatrixError:
+            return None
+
     def inertia(self, K, factorized_only: bool = False):
         """Eigenvalue sign counts ``(positive, negative, zero)`` of the tangent.
 
