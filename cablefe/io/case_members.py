@@ -100,8 +100,9 @@ class MemberTables:
         ends = np.array([(index[rec["nodes"][0]], index[rec["nodes"][1]]) for rec in records],
                         dtype=np.int64).reshape(-1, 2)
         lengths = np.linalg.norm(coords[ends[:, 1]] - coords[ends[:, 0]], axis=1).tolist()
-        members = [self.finish_member(rec, coords, tiny, sections, materials, length)
-                   for rec, length in zip(records, lengths)]
+        with _collector_paused():
+            members = [self.finish_member(rec, coords, tiny, sections, materials, length)
+                       for rec, length in zip(records, lengths)]
         for group in groups:
             members.extend(self.finish_group(group, coords, tiny, sections, materials))
         return members
@@ -263,6 +264,12 @@ class MemberTables:
         """The member of record ``rec``; ``length`` (m) between its end nodes."""
         key = rec["key"]
         a, b = rec["nodes"]
+        if (rec["interior"] is None and rec["up"] is None and rec["pretension"] is None and rec["type"] != "beam"
+                and length > tiny):
+            # the usual net member: nothing below applies to it (no interior
+            # points, no beam section needs, no pretension to check)
+            return Member(id=rec["id"], type=rec["type"], nodes=(a, b), section=rec["section"], key=key,
+                          length0=rec["length0"], tension_only=rec["tension_only"], divide=rec["divide"])
         if rec["interior"] is not None:  # given interior points: every element needs a length too
             chain = [coords[self.index[a]], *map(np.asarray, rec["interior"]), coords[self.index[b]]]
             pieces = np.linalg.norm(np.diff(np.asarray(chain), axis=0), axis=1)

@@ -357,6 +357,15 @@ class Quantities:
             raise CaseError(key, f"expected an array of {n} numbers, found {describe_value(value)}")
         if len(value) != n:
             raise CaseError(key, f"expected an array of {n} numbers, found {len(value)}")
+        # bare numbers (the usual coordinates): as to_si, without a key per entry
+        factor = self._bare[kind]
+        if all(type(v) is float or type(v) is int for v in value):
+            try:
+                out = tuple(float(v * factor) for v in value)
+            except OverflowError:
+                out = ()
+            if out and all(map(math.isfinite, out)):
+                return out
         return tuple(self.to_si(v, kind, f"{key}[{i}]") for i, v in enumerate(value))
 
     def _parse(self, text: str, kind: str, key: str) -> float:
