@@ -1,5 +1,5 @@
-"""Newton iterations of every shipped and generated case, before and after
-the whole-load first increment.
+"""Newton iterations and factorisations of every shipped and generated case,
+with the driver as it was (increments only) and as it is.
 
 Run by hand (not a test)::
 
@@ -9,9 +9,13 @@ Run by hand (not a test)::
 Every result (combination, or load case when there are none) of every
 ``cases/*.toml`` is solved twice in this process: "before" with
 ``NewtonSettings.whole_load_first = False`` (increments from
-``1/[analysis] increments``, growing by half after an easy one: the driver
-as it was), "after" with the default (the whole load tried first in one
-increment).  Generated cases: the benchmark saddle nets of ``cases.py`` in
+``1/[analysis] increments``, growing by half after an easy one), no
+modified Newton steps (``modified_ratio = 0``) and the stability counted by
+one more factorisation at every converged state (``PIVOT_REUSE_RATIO``
+off): the driver as it was; "after" with the defaults (the whole load
+tried first in one increment, modified Newton near the solution, the
+count read from the last iteration where it may).  Factorisations are the
+calls of ``LinearSolver.factorize`` (Newton steps and stability counts).  Generated cases: the benchmark saddle nets of ``cases.py`` in
 the ordinary ``[[members]]`` form with the default ``[analysis]``.  Prints a
 Markdown table: iterations and converged increments before -> after, and
 whether the converged positions agree (max difference, m).
@@ -32,22 +36,44 @@ ROOT = HERE.parent
 sys.path[:0] = [str(ROOT), str(HERE)]
 
 import cablefe  # noqa: E402
-from cablefe.solvers import newton, static  # noqa: E402
+from cablefe.solvers import linear, newton, static  # noqa: E402
+
+FACTORISATIONS = [0]
 
 
-def _run(path: Path, whole: bool):
+def _counting(factorize):
+    def counted(self, K):
+        FACTORISATIONS[0] += 1
+        return factorize(self, K)
+    return counted
+
+
+def _run(path: Path, now: bool):
     original = newton.follow_load_path
+    reuse = newton.PIVOT_REUSE_RATIO
 
     def patched(problem, settings=newton.NewtonSettings(), progress=None):
-        return original(problem, dataclasses.replace(settings, whole_load_first=whole), progress)
+        if not now:
+            settings = dataclasses.replace(settings, whole_load_first=False, modified_ratio=0.0)
+        return original(problem, settings, progress)
 
     static.follow_load_path = patched
+    newton.PIVOT_REUSE_RATIO = reuse if now else -1.0
+    factorize = linear.LinearSolver.factorize
+    linear.LinearSolver.factorize = _counting(factorize)
+    counts = {}
     try:
         model = cablefe.load_model(path)
-        res = cablefe.solve(model)
+        out = {}
+        for name, _ in model.results_to_run():
+            FACTORISATIONS[0] = 0
+            out[name] = cablefe.solve(model, names=[name])[name]
+            counts[name] = FACTORISATIONS[0]
     finally:
         static.follow_load_path = original
-    return {r.name: r for r in res.items}
+        newton.PIVOT_REUSE_RATIO = reuse
+        linear.LinearSolver.factorize = factorize
+    return out, counts
 
 
 def main(argv=None) -> None:
@@ -63,22 +89,25 @@ def main(argv=None) -> None:
         f = tmp / f"saddle-net-{N}x{N}-ordinary.toml"
         f.write_text(text)
         paths.append(f)
-    print("| case | result | iterations before | after | increments before | after | converged | max position difference m |")
-    print("| --- | --- | --- | --- | --- | --- | --- | --- |")
-    total = [0, 0]
+    print("| case | result | iterations before | after | factorisations before | after | increments before "
+          "| after | converged | max position difference m |")
+    print("| --- | --- | --- | --- | --- | --- | --- | --- | --- | --- |")
+    total = [0, 0, 0, 0]
     for path in paths:
-        before, after = _run(path, False), _run(path, True)
+        (before, fb), (after, fa) = _run(path, False), _run(path, True)
         for name, b in before.items():
             a = after[name]
             ob, oa = b.outcome, a.outcome
             total[0] += ob.iterations
             total[1] += oa.iterations
+            total[2] += fb[name]
+            total[3] += fa[name]
             diff = (float(np.abs(b.state.positions - a.state.positions).max())
                     if ob.converged and oa.converged else float("nan"))
             label = path.name if path.parent == ROOT / "cases" else f"(generated) {path.name}"
-            print(f"| {label} | {name} | {ob.iterations} | {oa.iterations} | {len(ob.increments)} | "
-                  f"{len(oa.increments)} | {ob.converged} / {oa.converged} | {diff:.1e} |")
-    print(f"| total | | {total[0]} | {total[1]} | | | | |")
+            print(f"| {label} | {name} | {ob.iterations} | {oa.iterations} | {fb[name]} | {fa[name]} | "
+                  f"{len(ob.increments)} | {len(oa.increments)} | {ob.converged} / {oa.converged} | {diff:.1e} |")
+    print(f"| total | | {total[0]} | {total[1]} | {total[2]} | {total[3]} | | | | |")
 
 
 if __name__ == "__main__":

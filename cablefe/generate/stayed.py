@@ -78,14 +78,14 @@ def build(values, command: str) -> str:
 
     heights = sorted({anchor_height(k) for k in range(1, n + 1)})
     case.table("nodes", "Deck nodes D<plane><i>; pylon anchorages P<pylon><plane>A<k> (k counts up "
-               "the pylon)" + ("; pylon bases P<pylon><plane>B at the ground and deck-level nodes "
-                              "P<pylon><plane>D." if beams_pylon else "."))
+               "the pylon)" + ("; pylon bases P<pylon><plane>B at the ground (the leg passes the deck "
+                              "bearing without a node there: the deck rests on its own bearing)."
+                              if beams_pylon else "."))
     c.deck_nodes(case, x, zd, layout)
     for p, px in enumerate(pylon_x, start=1):
         for tag, y in c.sides(planes, values["plane_spacing"]):
             if beams_pylon:
                 c.node(case, f"P{p}{tag}B", (px, y, 0.0))
-                c.node(case, f"P{p}{tag}D", (px, y, zd))
             for k, h in enumerate(heights, start=1):
                 c.node(case, f"P{p}{tag}A{k}", (px, y, zd + h))
 
@@ -126,10 +126,10 @@ def build(values, command: str) -> str:
     c.deck_members(case, layout, True)
     if beams_pylon:
         case.blank()
-        case.comment("Pylon legs P<pylon><plane>-<j> (beams) from the base through deck level to the top.")
+        case.comment("Pylon legs P<pylon><plane>-<j> (beams) from the base past the deck to the top.")
         for p in range(1, pylons + 1):
             for tag, _ in c.sides(planes, values["plane_spacing"]):
-                chain = [f"P{p}{tag}B", f"P{p}{tag}D"] + [f"P{p}{tag}A{k}" for k in range(1, len(heights) + 1)]
+                chain = [f"P{p}{tag}B"] + [f"P{p}{tag}A{k}" for k in range(1, len(heights) + 1)]
                 for j in range(1, len(chain)):
                     c.member(case, f"P{p}{tag}-{j}", "beam", chain[j - 1], chain[j], "pylon")
 

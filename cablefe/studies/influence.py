@@ -163,19 +163,18 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
     names, kind, owner, dirs, base = [], [], [], [], []
     disp0 = state.positions - model.coordinates
 
-    # displacement rows
-    r_rows, r_cols = [], []
-    for n in nodes:
-        for a, label in enumerate(("ux", "uy", "uz")):
-            g = model.dof[n, a]
-            if g >= 0 and asm.equation[g] >= 0:
-                r_rows.append(len(names))
-                r_cols.append(int(asm.equation[g]))
-            names.append(f"{model.node_ids[n]} {label}")
-            kind.append("displacement")
-            owner.append(model.node_ids[n])
-            dirs.append(a)
-            base.append(float(disp0[n, a]))
+    # displacement rows: ux uy uz of each watched node, in node order
+    nodes = np.asarray(nodes, dtype=np.int64)
+    g = model.dof[nodes, :3].ravel()                  # (3 n,) global DOFs (-1: none)
+    eq = np.where(g >= 0, asm.equation[np.maximum(g, 0)], -1)
+    r_rows = np.flatnonzero(eq >= 0)
+    r_cols = eq[r_rows]
+    ids = [model.node_ids[n] for n in nodes.tolist()]
+    names += [f"{i} {label}" for i in ids for label in ("ux", "uy", "uz")]
+    kind += ["displacement"] * g.size
+    owner += [i for i in ids for _ in range(3)]
+    dirs += [0, 1, 2] * len(ids)
+    base += disp0[nodes, :3].ravel().tolist()
     C_disp = sp.csr_matrix((np.ones(len(r_rows)), (r_rows, r_cols)), shape=(len(names), nfree))
 
     blocks = session.base_evaluation.responses
