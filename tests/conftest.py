@@ -21,6 +21,27 @@ def spec_factory():
     return make_spec
 
 
+def solve_counting_factorisations(monkeypatch, path):
+    """``(results, factorisations made)`` of solving the case at ``path``
+    (new factorisations of the static problems, stability counts included)."""
+    import cablefe
+    from cablefe.solvers import static
+    made = []
+    original = static.StaticProblem._factorize
+
+    def counted(self, K):
+        before = self._factorized
+        fact = original(self, K)
+        made.append(self._factorized is not before)
+        return fact
+    monkeypatch.setattr(static.StaticProblem, "_factorize", counted)
+    try:
+        results = cablefe.solve(cablefe.load_model(path))
+    finally:
+        monkeypatch.setattr(static.StaticProblem, "_factorize", original)
+    return results, sum(made)
+
+
 # ---------------------------------------------------------------------------
 # The verification manual (docs/verification.md) is generated from the tests:
 # each outside check calls ``verify.check(...)``, which asserts and records

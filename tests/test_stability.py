@@ -20,7 +20,7 @@ from cablefe.cli import main
 from cablefe.solvers import linear
 from cablefe.solvers.linear import dense_inertia, make_linear_solver
 from cablefe.spec import AnalysisSettings, Material, Member, NodalLoad, Section
-from conftest import make_spec
+from conftest import make_spec, solve_counting_factorisations
 
 BACKENDS = linear.available_backends()
 # the verify fixture only records, so one instance may serve every example
@@ -332,24 +332,13 @@ def test_converged_count_from_the_last_iteration_equals_a_fresh_count(monkeypatc
     # the count read from the last iteration's factorisation (when its
     # residual was small) must be the one a fresh factorisation of the
     # converged tangent gives, and must save that factorisation
-    from cablefe.solvers import newton, static
+    from cablefe.solvers import newton
     path = Path(__file__).resolve().parent.parent / "cases" / "saddle_net.toml"
     counts = {}
 
     def run(reuse):
         monkeypatch.setattr(newton, "PIVOT_REUSE_RATIO", 1e-3 if reuse else -1.0)
-        made = []
-        original = static.StaticProblem._factorize
-
-        def counted(self, K):
-            before = self._factorized
-            fact = original(self, K)
-            made.append(self._factorized is not before)
-            return fact
-        monkeypatch.setattr(static.StaticProblem, "_factorize", counted)
-        results = cablefe.solve(cablefe.load_model(path))
-        monkeypatch.setattr(static.StaticProblem, "_factorize", original)
-        counts[reuse] = sum(made)
+        results, counts[reuse] = solve_counting_factorisations(monkeypatch, path)
         return {r.name: r.outcome for r in results.items}
 
     fresh, reused = run(False), run(True)

@@ -11,6 +11,7 @@ from numpy.testing import assert_allclose
 import cablefe
 from cablefe.io import case as case_io
 from cablefe.solvers import newton, static
+from conftest import solve_counting_factorisations
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -58,26 +59,17 @@ def test_modified_newton_near_the_solution_lands_on_the_same_state_with_fewer_fa
     # Equations, ch. 5, from memory); the equilibrium is the same unique one,
     # met to the same residual test, so positions agree far below 1e-6 m
     path = ROOT / "cases" / "saddle_net.toml"
-    made = []
-    original_factorize = static.StaticProblem._factorize
-
-    def counted(self, K):
-        before = self._factorized
-        fact = original_factorize(self, K)
-        made.append(self._factorized is not before)
-        return fact
 
     def solve(ratio):
         original = newton.follow_load_path
-        made.clear()
 
         def patched(problem, settings=newton.NewtonSettings(), progress=None):
             return original(problem, dataclasses.replace(settings, modified_ratio=ratio), progress)
         monkeypatch.setattr(static, "follow_load_path", patched)
-        monkeypatch.setattr(static.StaticProblem, "_factorize", counted)
-        out = cablefe.solve(cablefe.load_model(path))
-        monkeypatch.setattr(static, "follow_load_path", original)
-        return out, sum(made)
+        try:
+            return solve_counting_factorisations(monkeypatch, path)
+        finally:
+            monkeypatch.setattr(static, "follow_load_path", original)
 
     full, full_count = solve(0.0)
     chord, chord_count = solve(1e-4)
