@@ -310,12 +310,11 @@ def result_mesh(results: Results, name: str, utilization: dict | None = None) ->
         "member": [np.concatenate(member).astype(np.int32)],
         "slack": [np.concatenate(slack).astype(np.int8)],
     }
-    diameters = np.array([np.nan if m.spec.sections.get(mm.section) is None
-                          or m.spec.sections[mm.section].diameter is None
-                          else m.spec.sections[mm.section].diameter / L for mm in m.members])
-    if np.any(np.isfinite(diameters)):
+    given = {name: sec.diameter / L for name, sec in m.spec.sections.items() if sec.diameter is not None}
+    if given:
         # the section's diameter (length units; NaN where none is given): a
         # viewer's tube filter can draw the cables to scale
+        diameters = np.array([given.get(mm.section, np.nan) for mm in m.members])
         cell_data["diameter"] = [diameters[cell_data["member"][0]]]
     if "beam" in m.families and len(m.families["beam"]):
         cell_data["moment_y"] = [np.concatenate(my)]

@@ -117,7 +117,7 @@ class FromBaseProblem(StaticProblem):
         base factorization serves, the tangent is only built when needed."""
         build = want_tangent and self._base_factor is None
         self._at = None
-        ev = self._checked_evaluation(state, self._loads_at(lam), 1.0, build, lam)
+        ev = self._checked_evaluation(state, *self._assembly_loads(lam), build, lam)
         if ev is None:
             return np.full(len(self.free), np.nan), 1.0, None
         self._at = (state, lam)
@@ -140,7 +140,7 @@ class FromBaseProblem(StaticProblem):
             self._base_factor = None     # slow: full Newton from here on
         if K is None:
             state, lam = self._at
-            K = self.assembler.evaluate(state, self._loads_at(lam), 1.0, True).tangent
+            K = self.assembler.evaluate(state, *self._assembly_loads(lam), True).tangent
         return super().solve_linear(K, r)
 
 
