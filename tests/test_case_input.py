@@ -9,6 +9,7 @@ import copy
 import dataclasses
 import json
 import math
+from pathlib import Path
 
 import pytest
 import scipy.constants as const
@@ -18,6 +19,7 @@ from numpy.testing import assert_allclose
 
 from cablefe.errors import CaseError
 from cablefe.io.case import interior_nodes, match_members, parse_case, read_case
+from cablefe.io import case as case_module
 from cablefe.io.units import STANDARD_GRAVITY, Quantities, registry, unit_system
 from cablefe.spec import (MemberLoad, NodalLoad, PatchLoad, PrescribedDisplacement, SelfWeight,
                           TemperatureLoad, UnitSystem)
@@ -25,6 +27,8 @@ from cablefe.spec import (MemberLoad, NodalLoad, PatchLoad, PrescribedDisplaceme
 # Float round-off of a handful of multiplications on values typed with at most
 # 17 significant digits: far below this, far above any real conversion error.
 RTOL_UNITS = 1e-12
+
+CASES = Path(__file__).resolve().parent.parent / "cases"
 
 
 BASE = """\
@@ -109,6 +113,52 @@ def test_toml_syntax_error_gives_line_and_column(tmp_path):
     text = BASE + "\n[analysis]\nincrements = = 3\n"
     line = text.splitlines().index("increments = = 3") + 1
     error = expect_error(tmp_path, text, "", f"TOML syntax error at line {line}, column")
+
+
+# The compiled parser reads the file when it is installed; tomli is the
+# reference (it explains every syntax error).  Both must give the same data
+# on every shipped case and on valid edge cases of the syntax (values from
+# the TOML specification, toml.io, sections on strings, integers, floats,
+# inline tables and arrays of tables), and the compiled one must never
+# accept what tomli rejects.
+TOML_EDGE_VALID = [
+    'a = "tab\\there \\u00e9 \\U0001F600"\nb = \'C:\\\\raw\'\n',
+    'a = """\nline one\\\n   joined"""\n',
+    "a = 0xDEAD_BEEF\nb = 0o755\nc = 0b1101\nd = -17\ne = +99\nf = 1_000\n",
+    "a = 6.626e-34\nb = -0.0\nc = inf\nd = -inf\ne = 224_617.445_991\n",
+    "t = {x = 1, y = [1, 2.5, \"s\"], z = {w = true}}\n",
+    "[[m]]\nid = 1\n[[m]]\nid = 2\n[m.sub]\nk = 3\n",
+    'a.b.c = 1\na.d = 2\n"quoted key" = 3\n',
+    "a = [\n  1,\n  2, # comment\n]\n",
+    "a = 1979-05-27\nb = 07:32:00\nc = 1979-05-27T07:32:00\n",
+]
+TOML_EDGE_INVALID = [
+    "a = 1\na = 2\n", "a = 012\n", "a = 1.\n", "a = 1__0\n", "a =\n", 'a = "\\q"\n',
+    "a.b = 1\n[a]\nb = 2\n", "a = [1]\n[[a]]\nb = 1\n", 'a = "x\x01"\n', "a = [1, 2\n",
+    "[t]\n[t]\n", "a = {b = 1\n", "a = 1 2\n",
+]
+
+
+@pytest.mark.skipif(case_module._fast_toml is None, reason="the compiled TOML parser is not installed")
+def test_compiled_parser_agrees_with_tomli():
+    import tomli
+    for path in sorted(CASES.glob("*.toml")):
+        text = path.read_text(encoding="utf-8")
+        assert case_module._fast_parse(text) == tomli.loads(text), path.name
+    for text in TOML_EDGE_VALID:
+        assert case_module._fast_parse(text) == tomli.loads(text), text
+    for text in TOML_EDGE_INVALID:
+        with pytest.raises(tomli.TOMLDecodeError):
+            tomli.loads(text)
+        assert case_module._fast_parse(text) is None, text
+
+
+def test_syntax_errors_come_from_tomli_when_the_compiled_parser_is_missing(tmp_path, monkeypatch):
+    monkeypatch.setattr(case_module, "_fast_toml", None)
+    spec = read_case(write(tmp_path, BASE))
+    assert [m.id for m in spec.members] == ["M1", "M2"]
+    text = BASE + "\n[analysis]\nincrements = = 3\n"
+    expect_error(tmp_path, text, "", "TOML syntax error at line")
 
 
 def test_duplicate_node_key_is_reported_as_duplicate(tmp_path):
