@@ -53,28 +53,34 @@ def test_plain_members_read_in_bulk_as_the_full_check_reads_them(monkeypatch):
         assert bulk == full
 
 
-def test_modified_newton_near_the_solution_lands_on_the_same_state_with_fewer_factorisations(monkeypatch):
-    # near the solution the last factorisation serves (modified Newton, the
-    # chord method: Kelley 1995, Iterative Methods for Linear and Nonlinear
-    # Equations, ch. 5, from memory); the equilibrium is the same unique one,
-    # met to the same residual test, so positions agree far below 1e-6 m
+def test_modified_and_inexact_newton_land_on_the_same_state_with_fewer_factorisations(monkeypatch):
+    # near the solution the last factorisation serves: as it is (modified
+    # Newton, the chord method: Kelley 1995, Iterative Methods for Linear and
+    # Nonlinear Equations, ch. 5, from memory) or as the preconditioner of
+    # conjugate gradients on the present tangent (inexact Newton: Dembo,
+    # Eisenstat & Steihaug 1982, SIAM J. Numer. Anal. 19(2), from memory);
+    # the equilibrium is the same unique one, met to the same residual test,
+    # so positions agree far below 1e-6 m
     path = ROOT / "cases" / "saddle_net.toml"
 
-    def solve(ratio):
+    def solve(**change):
         original = newton.follow_load_path
 
         def patched(problem, settings=newton.NewtonSettings(), progress=None):
-            return original(problem, dataclasses.replace(settings, modified_ratio=ratio), progress)
+            return original(problem, dataclasses.replace(settings, **change), progress)
         monkeypatch.setattr(static, "follow_load_path", patched)
         try:
             return solve_counting_factorisations(monkeypatch, path)
         finally:
             monkeypatch.setattr(static, "follow_load_path", original)
 
-    full, full_count = solve(0.0)
-    chord, chord_count = solve(1e-4)
+    full, full_count = solve(modified_ratio=0.0, krylov_ratio=0.0)
+    chord, chord_count = solve(modified_ratio=1e-4, krylov_ratio=0.0)
+    inexact, inexact_count = solve(modified_ratio=1e-4, krylov_ratio=1e-2)
     for name in ("snow", "uplift"):
-        assert chord[name].converged and full[name].converged
-        assert chord[name].outcome.negative_pivots == full[name].outcome.negative_pivots
-        assert_allclose(chord[name].state.positions, full[name].state.positions, rtol=0, atol=1e-6)
+        for other in (chord, inexact):
+            assert other[name].converged and full[name].converged
+            assert other[name].outcome.negative_pivots == full[name].outcome.negative_pivots
+            assert_allclose(other[name].state.positions, full[name].state.positions, rtol=0, atol=1e-6)
     assert chord_count < full_count
+    assert inexact_count < chord_count

@@ -88,6 +88,7 @@ class NewtonSettings:
     whole_load_first: bool = True      # try the whole load in one increment before 1/increments
     stability: bool = True             # count the negative pivots at each converged state
     modified_ratio: float = 1e-4       # below this relative residual, step with the last factorisation
+    krylov_ratio: float = 1e-2         # below this, inexact steps: CG preconditioned by the last factorisation
 
 
 @dataclass(frozen=True)
@@ -273,6 +274,37 @@ def negative_pivots(problem, K) -> int | None:
 #: chord method, from memory).
 MODIFIED_CONTRACTION = 0.1
 
+#: inexact Newton steps (``NewtonSettings.krylov_ratio``): the conjugate
+#: gradients preconditioned with the last factorisation get at most this
+#: many iterations, each a back-substitution and a product with K, before a
+#: new factorisation is made instead (a factorisation costs 25-40
+#: back-substitutions on the nets and bridges measured, benchmarks/README.md,
+#: so a failed attempt wastes at most a third of one)
+KRYLOV_ITERATIONS = 10
+#: an inexact step must at least halve the residual, or the rest of the
+#: increment factorises again (the tangent has changed too much for the old
+#: factors, or the step met a strongly nonlinear stretch)
+INEXACT_CONTRACTION = 0.5
+#: largest relative residual asked of the linear solve of an inexact step
+KRYLOV_FORCING = 1e-2
+
+
+def forcing(ratio: float, tolerance: float) -> float:
+    """Relative residual asked of the linear solve of an inexact Newton step.
+
+    ``min(KRYLOV_FORCING, max(ratio, 0.1 tolerance / ratio))``: a forcing
+    term of the order of the present relative residual keeps Newton's
+    quadratic convergence (Dembo, Eisenstat & Steihaug 1982, "Inexact Newton
+    methods", SIAM J. Numer. Anal. 19(2), Theorem 3.3, from memory), and no
+    tighter than what takes the residual below a tenth of the tolerance in
+    this step (the linear solve's residual is the next nonlinear residual,
+    up to the quadratic term).
+    """
+    if not ratio > 0.0:
+        return KRYLOV_FORCING
+    return min(KRYLOV_FORCING, max(ratio, 0.1 * tolerance / ratio))
+
+
 #: the negative pivots of the last iteration's tangent stand for those of
 #: the converged state when that iteration's relative residual was below
 #: this (Newton's quadratic convergence: the last correction is of the
@@ -404,7 +436,11 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
     # each of its steps cuts the residual tenfold (see MODIFIED_CONTRACTION)
     again = getattr(problem, "solve_again", None)
     factorised = False
-    reuse = again is not None and settings.modified_ratio > 0.0
+    # inexact Newton steps by conjugate gradients preconditioned with the
+    # last factorisation, below ``krylov_ratio`` (see KRYLOV_ITERATIONS)
+    krylov = getattr(problem, "solve_krylov", None) if settings.krylov_ratio > 0.0 else None
+    positive_factor = False      # the last factorised tangent was positive definite
+    reuse = (again is not None and settings.modified_ratio > 0.0) or krylov is not None
     for it in range(limit + 1):
         history.append(ratio)
         if not math.isfinite(ratio):
@@ -416,10 +452,16 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
             break
         if patience is not None and it >= patience and not ratio < 0.1 * history[-2]:
             return _Step(state, False, it, ratio, "slow", history=history, indefinite=indefinite)
-        modified = reuse and factorised and ratio <= settings.modified_ratio
-        du = again(r) if modified else None
+        kind = "full"     # a factorisation of K, or steps with the last one:
+        du = None
+        if reuse and factorised and positive_factor and krylov is not None and ratio <= settings.krylov_ratio:
+            du = krylov(K, r, forcing(ratio, settings.tolerance), KRYLOV_ITERATIONS)
+            kind = "inexact" if du is not None else kind
+        if du is None and reuse and factorised and again is not None and ratio <= settings.modified_ratio:
+            du = again(r)
+            kind = "chord" if du is not None else kind
+        modified = kind != "full"
         if du is None:
-            modified = False
             try:
                 du = -problem.solve_linear(K, r)
             except MechanismError as exc:
@@ -431,13 +473,15 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
             return _Step(state, False, it, ratio, "non-finite", history=history)
         if not modified:
             negatives = _iterate_pivots(problem, K)
-            indefinite |= _indefinite(negatives, du, r)
+            this_indefinite = _indefinite(negatives, du, r)
+            indefinite |= this_indefinite
+            positive_factor = not this_indefinite
             known = 0 if negatives == 0 and ratio <= PIVOT_REUSE_RATIO else None
         if indefinite and stop_on_indefinite:
             return _Step(state, False, it + 1, ratio, "indefinite", history=history, indefinite=True)
         before = ratio
         state, r, ref, K, ratio, alpha = _line_search(problem, state, du, r, ratio, lam, settings)
-        if modified and not ratio <= MODIFIED_CONTRACTION * before:
+        if modified and not ratio <= (MODIFIED_CONTRACTION if kind == "chord" else INEXACT_CONTRACTION) * before:
             reuse = False     # too slow: a new factorisation from here on
         if track is not None:
             track.append((du, alpha, r0))

@@ -78,6 +78,7 @@ class StaticProblem:
         #: why the last failed evaluation failed (read by the Newton driver's message)
         self.failure_reason = ""
         self._solved = False        # a linear solve since the last commit
+        self.krylov_iterations = 0  # conjugate gradient iterations of the inexact Newton steps
         self.last_increment_solved = False
         # the last factorisation and the tangent values it was made of: the
         # stability count and the arc-length predictor reuse it
@@ -248,6 +249,20 @@ class StaticProblem:
             return last[3].solve(r)
         except linear.SingularMatrixError:
             return None
+
+    def solve_krylov(self, K, r, rtol: float, maxiter: int):
+        """``K^-1 r`` to the relative residual ``rtol`` by conjugate gradients
+        preconditioned with the last factorisation (inexact Newton steps),
+        or None: no factorisation yet, a tangent that is not symmetric (beam
+        models), or no convergence within ``maxiter`` iterations (see
+        :mod:`cablefe.solvers.linear.krylov`)."""
+        last = self._factorized
+        if last is None or K is None or self.model.has_rotations or not self.solver.symmetric \
+                or K.shape[0] == 0:
+            return None
+        found = linear.preconditioned_cg(K, r, last[3].precondition, rtol, maxiter)
+        self.krylov_iterations += found.iterations
+        return found.x if found.converged else None
 
     def inertia(self, K, factorized_only: bool = False):
         """Eigenvalue sign counts ``(positive, negative, zero)`` of the tangent.

@@ -131,6 +131,7 @@ DENSE_INERTIA_MAX = 2000
 
 from .diagnostics import _fallback_inertia, dense_inertia, find_unrestrained  # noqa: E402
 from .errors import SingularMatrixError, StaleFactorizationError  # noqa: E402
+from .krylov import KrylovOutcome, preconditioned_cg  # noqa: E402
 from .solver import (KNOWN_BACKENDS, Factorization, LinearSolver,  # noqa: E402
                      available_backends, make_linear_solver)
 
@@ -138,6 +139,7 @@ __all__ = [
     "DENSE_INERTIA_MAX",
     "Factorization",
     "KNOWN_BACKENDS",
+    "KrylovOutcome",
     "LinearSolver",
     "SingularMatrixError",
     "StaleFactorizationError",
@@ -145,4 +147,5 @@ __all__ = [
     "dense_inertia",
     "find_unrestrained",
     "make_linear_solver",
+    "preconditioned_cg",
 ]

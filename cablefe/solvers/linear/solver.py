@@ -259,6 +259,18 @@ class Factorization:
             self._inertia = found
         return self._inertia
 
+    def precondition(self, v: np.ndarray) -> np.ndarray:
+        """``K^-1 v`` with these factors and no residual check or refinement.
+
+        For preconditioning another matrix (see :mod:`.krylov`): the Krylov
+        iteration judges its own residual, so a check here would only cost
+        one more product with ``K`` per iteration.
+        """
+        v = np.asarray(v, dtype=np.float64)
+        if self.n == 0:
+            return np.zeros_like(v)
+        return self._raw_solve(v[:, None]).ravel()
+
 
 class LinearSolver:
     """Factorizes tangent stiffness matrices, reusing work per sparsity pattern.
