@@ -35,6 +35,8 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 ROOT = HERE.parent
 RESULTS = HERE / "results"
+sys.path.insert(0, str(HERE))
+from cases import cli_environment  # noqa: E402
 
 
 # the whole command in a fresh interpreter, then its own peak memory on stderr
@@ -44,7 +46,7 @@ _CHECK = ("import resource, sys\nfrom cablefe.cli import main\nstatus = main(['c
 
 
 def _cablefe(args, **kw):
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    env = cli_environment(ROOT)
     return subprocess.run([sys.executable, "-m", "cablefe", *args], env=env, capture_output=True,
                           text=True, check=True, **kw)
 
@@ -54,7 +56,7 @@ def measure(N: int, folder: Path, repeat: int) -> dict:
     _cablefe(["new", "net", "--span-x", str(2 * N), "--span-y", str(2 * N), "--spacing", "2",
               "-o", str(case), "--force"])
     best, best_cpu = float("inf"), float("inf")
-    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    env = cli_environment(ROOT)   # the "new" above wrote the bytecode cache
     for _ in range(repeat):
         t = time.perf_counter()
         done = subprocess.run([sys.executable, "-c", _CHECK, str(case)], env=env, capture_output=True,
