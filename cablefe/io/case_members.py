@@ -2,6 +2,7 @@
 the stress-free data each member needs (a mixin of the case reader)."""
 from __future__ import annotations
 
+import itertools
 import math
 from typing import Mapping
 
@@ -39,12 +40,14 @@ class MemberTables:
         self.check_size(records, groups, len(nodes))
 
         # unique member ids over both forms
-        first_key: dict[str, str] = {}
-        for rec in records:
-            if rec["id"] in first_key:
-                raise CaseError(f"{rec['key']}.id",
-                                f'duplicate member id "{rec["id"]}" (first at {first_key[rec["id"]]})')
-            first_key[rec["id"]] = rec["key"]
+        first_key = {rec["id"]: rec["key"] for rec in reversed(records)}
+        if len(first_key) != len(records):   # a duplicate: name the first one met
+            first_key = {}
+            for rec in records:
+                if rec["id"] in first_key:
+                    raise CaseError(f"{rec['key']}.id",
+                                    f'duplicate member id "{rec["id"]}" (first at {first_key[rec["id"]]})')
+                first_key[rec["id"]] = rec["key"]
         seen = set(first_key)
         for g, group in enumerate(groups):
             def where(name, g=g):  # error path only
@@ -58,6 +61,8 @@ class MemberTables:
         # interior nodes of divided members
         owners: dict[str, tuple[int, int]] = {}
         for index, rec in enumerate(records):
+            if rec["divide"] == 1:
+                continue
             for k, nid in enumerate(interior_node_ids(rec["id"], rec["divide"]), start=1):
                 if nid in nodes:
                     raise CaseError(self.node_key(nid), f'duplicate node id "{nid}": it is also interior node {k} '
@@ -66,12 +71,16 @@ class MemberTables:
         known = [*nodes, *owners]  # in case order, for suggestions
         # nodes that some element joins: only these carry stiffness
         self.joined: set[str] = set(owners)
-        for rec in records:
-            self.joined.update(rec["nodes"])
+        self.joined.update(itertools.chain.from_iterable(rec["nodes"] for rec in records))
         for group in groups:
             self.joined.update(group["i"])
             self.joined.update(group["j"])
+        # every end that is no interior node is a declared node: the loop
+        # below then has nothing to find in an undivided member
+        ends_known = self.joined.difference(owners).issubset(nodes.keys())
         for rec in records:
+            if ends_known and rec["divide"] == 1 and rec["nodes"][0] != rec["nodes"][1]:
+                continue   # both ends are declared nodes and no interior node is an end
             for end, name in enumerate(rec["nodes"]):
                 if name not in nodes and name not in owners:
                     raise CaseError(f"{rec['key']}.nodes[{end}]", f'no node named "{name}"'
@@ -264,12 +273,14 @@ class MemberTables:
         """The member of record ``rec``; ``length`` (m) between its end nodes."""
         key = rec["key"]
         a, b = rec["nodes"]
-        if (rec["interior"] is None and rec["up"] is None and rec["pretension"] is None and rec["type"] != "beam"
-                and length > tiny):
+        pretension = rec["pretension"]
+        if (rec["interior"] is None and rec["up"] is None and rec["type"] != "beam" and length > tiny
+                and (pretension is None or pretension >= 0.0)):
             # the usual net member: nothing below applies to it (no interior
-            # points, no beam section needs, no pretension to check)
+            # points, no beam section needs, no compression to check against EA)
             return Member(id=rec["id"], type=rec["type"], nodes=(a, b), section=rec["section"], key=key,
-                          length0=rec["length0"], tension_only=rec["tension_only"], divide=rec["divide"])
+                          length0=rec["length0"], pretension=pretension, tension_only=rec["tension_only"],
+                          divide=rec["divide"])
         if rec["interior"] is not None:  # given interior points: every element needs a length too
             chain = [coords[self.index[a]], *map(np.asarray, rec["interior"]), coords[self.index[b]]]
             pieces = np.linalg.norm(np.diff(np.asarray(chain), axis=0), axis=1)
