@@ -32,6 +32,19 @@ absent, and three optional methods:
 ``solve_again(r)``
     ``K_last^-1 r`` with the last factorisation made by ``solve_linear``, or
     None when there is none: modified Newton steps near the solution.
+``solve_krylov(K, r, rtol, maxiter)``
+    ``K^-1 r`` to the relative residual ``rtol`` by conjugate gradients
+    preconditioned with the last factorisation, or None (no factorisation,
+    an unsymmetric tangent, no convergence): inexact Newton steps.
+
+Near the solution (relative residual below ``NewtonSettings.krylov_ratio``)
+and after a factorisation of a positive definite tangent, a step solves
+the present tangent inexactly by :func:`cablefe.solvers.linear.krylov.
+preconditioned_cg` with the last factors as preconditioner (at most
+:data:`KRYLOV_ITERATIONS` back-substitutions, to the relative residual
+:func:`forcing`); failing that, or without ``solve_krylov``, the chord step
+with the last factors is tried below ``modified_ratio``; otherwise, or when
+such a step does not cut the residual enough, the tangent is factorised.
 
 Stability is measured on every factorised tangent: the negative pivots
 (eigenvalues) of the tangent at each converged state are kept in
