@@ -6,6 +6,7 @@ import dataclasses
 from pathlib import Path
 
 import numpy as np
+import scipy.sparse as sp
 from numpy.testing import assert_allclose
 
 import cablefe
@@ -84,3 +85,59 @@ def test_modified_and_inexact_newton_land_on_the_same_state_with_fewer_factorisa
             assert_allclose(other[name].state.positions, full[name].state.positions, rtol=0, atol=1e-6)
     assert chord_count < full_count
     assert inexact_count < chord_count
+
+
+class _CubicSprings:
+    """Two unknowns, internal force A u + u^3 (componentwise): a stiffening
+    problem with a symmetric positive definite tangent A + 3 diag(u^2)."""
+
+    symmetric_tangent = True
+    roundoff = 0.0
+
+    def __init__(self, krylov_answers: bool):
+        self.A = np.array([[2.0, -1.0], [-1.0, 2.0]])
+        self.f = np.array([3.0, 1.0])
+        self.krylov_answers = krylov_answers
+        self.calls = {"factorise": 0, "krylov": 0, "chord": 0}
+        self._K = None
+
+    def evaluate(self, u, lam, want_tangent):
+        r = self.A @ u + u**3 - lam * self.f
+        K = sp.csr_matrix(self.A + np.diag(3.0 * u**2)) if want_tangent else None
+        return r, float(np.linalg.norm(lam * self.f)), K
+
+    def advance(self, u, du):
+        return u + du
+
+    def solve_linear(self, K, r):
+        self.calls["factorise"] += 1
+        self._K = K.toarray()
+        return np.linalg.solve(self._K, r)
+
+    def solve_again(self, r):
+        self.calls["chord"] += 1
+        return np.linalg.solve(self._K, r)
+
+    def solve_krylov(self, K, r, rtol, maxiter):
+        self.calls["krylov"] += 1
+        if not self.krylov_answers:
+            return None   # as for negative curvature or no convergence
+        return np.linalg.solve(K.toarray(), r)
+
+
+def test_a_failed_inexact_step_factorises_instead_of_a_chord_step():
+    # a failed conjugate gradient attempt may have met an indefinite tangent:
+    # the step must factorise (and so count the pivots), never fall back on
+    # the old factors
+    problem = _CubicSprings(krylov_answers=False)
+    step = newton.newton_increment(problem, np.zeros(2), 1.0, newton.NewtonSettings(tolerance=1e-12))
+    assert step.converged
+    assert problem.calls["krylov"] >= 1 and problem.calls["chord"] == 0
+    # the solution of A u + u^3 = f, checked by its residual
+    u = step.state
+    assert_allclose(problem.A @ u + u**3, problem.f, rtol=0, atol=1e-11)
+    answered = _CubicSprings(krylov_answers=True)
+    again = newton.newton_increment(answered, np.zeros(2), 1.0, newton.NewtonSettings(tolerance=1e-12))
+    assert again.converged and answered.calls["chord"] == 0
+    assert answered.calls["factorise"] < problem.calls["factorise"]
+    assert_allclose(again.state, u, rtol=0, atol=1e-11)

@@ -35,16 +35,18 @@ absent, and three optional methods:
 ``solve_krylov(K, r, rtol, maxiter)``
     ``K^-1 r`` to the relative residual ``rtol`` by conjugate gradients
     preconditioned with the last factorisation, or None (no factorisation,
-    an unsymmetric tangent, no convergence): inexact Newton steps.
+    negative curvature, no convergence): inexact Newton steps, used only
+    when the problem's ``symmetric_tangent`` is True.
 
 Near the solution (relative residual below ``NewtonSettings.krylov_ratio``)
 and after a factorisation of a positive definite tangent, a step solves
 the present tangent inexactly by :func:`cablefe.solvers.linear.krylov.
 preconditioned_cg` with the last factors as preconditioner (at most
 :data:`KRYLOV_ITERATIONS` back-substitutions, to the relative residual
-:func:`forcing`); failing that, or without ``solve_krylov``, the chord step
-with the last factors is tried below ``modified_ratio``; otherwise, or when
-such a step does not cut the residual enough, the tangent is factorised.
+:func:`forcing`).  Problems without them (an unsymmetric tangent) take
+the chord step with the last factors below ``modified_ratio`` instead.
+Otherwise, when such an attempt fails, or when a step does not cut the
+residual enough, the tangent is factorised.
 
 Stability is measured on every factorised tangent: the negative pivots
 (eigenvalues) of the tangent at each converged state are kept in
@@ -451,7 +453,8 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
     factorised = False
     # inexact Newton steps by conjugate gradients preconditioned with the
     # last factorisation, below ``krylov_ratio`` (see KRYLOV_ITERATIONS)
-    krylov = getattr(problem, "solve_krylov", None) if settings.krylov_ratio > 0.0 else None
+    krylov = (getattr(problem, "solve_krylov", None)
+              if settings.krylov_ratio > 0.0 and getattr(problem, "symmetric_tangent", False) else None)
     positive_factor = False      # the last factorised tangent was positive definite
     reuse = (again is not None and settings.modified_ratio > 0.0) or krylov is not None
     for it in range(limit + 1):
@@ -470,7 +473,9 @@ def newton_increment(problem, state, lam, settings: NewtonSettings, patience: in
         if reuse and factorised and positive_factor and krylov is not None and ratio <= settings.krylov_ratio:
             du = krylov(K, r, forcing(ratio, settings.tolerance), KRYLOV_ITERATIONS)
             kind = "inexact" if du is not None else kind
-        if du is None and reuse and factorised and again is not None and ratio <= settings.modified_ratio:
+        # the chord step where conjugate gradients do not apply (a failed
+        # attempt factorises: the tangent may be indefinite, and is counted)
+        if krylov is None and reuse and factorised and again is not None and ratio <= settings.modified_ratio:
             du = again(r)
             kind = "chord" if du is not None else kind
         modified = kind != "full"

@@ -250,15 +250,20 @@ class StaticProblem:
         except linear.SingularMatrixError:
             return None
 
+    @property
+    def symmetric_tangent(self) -> bool:
+        """True when the tangent is symmetric (bars and cables; beam models'
+        spin variables make it unsymmetric away from equilibrium)."""
+        return self.solver.symmetric and not self.model.has_rotations
+
     def solve_krylov(self, K, r, rtol: float, maxiter: int):
         """``K^-1 r`` to the relative residual ``rtol`` by conjugate gradients
         preconditioned with the last factorisation (inexact Newton steps),
-        or None: no factorisation yet, a tangent that is not symmetric (beam
-        models), or no convergence within ``maxiter`` iterations (see
-        :mod:`cablefe.solvers.linear.krylov`)."""
+        or None: no factorisation yet, a tangent that is not symmetric, a
+        direction of non-positive curvature, or no convergence within
+        ``maxiter`` iterations (see :mod:`cablefe.solvers.linear.krylov`)."""
         last = self._factorized
-        if last is None or K is None or self.model.has_rotations or not self.solver.symmetric \
-                or K.shape[0] == 0:
+        if last is None or K is None or not self.symmetric_tangent or K.shape[0] == 0:
             return None
         found = linear.preconditioned_cg(K, r, last[3].precondition, rtol, maxiter)
         self.krylov_iterations += found.iterations
