@@ -292,9 +292,10 @@ MODIFIED_CONTRACTION = 0.1
 #: inexact Newton steps (``NewtonSettings.krylov_ratio``): the conjugate
 #: gradients preconditioned with the last factorisation get at most this
 #: many iterations, each a back-substitution and a product with K, before a
-#: new factorisation is made instead (a factorisation costs 25-40
-#: back-substitutions on the nets and bridges measured, benchmarks/README.md,
-#: so a failed attempt wastes at most a third of one)
+#: new factorisation is made instead; the problem lowers it to a third of
+#: what a factorisation costs with its linear solver (SuperLU: about 25
+#: back-substitutions, PARDISO about 5, benchmarks/README.md), so a failed
+#: attempt wastes at most a third of one
 KRYLOV_ITERATIONS = 10
 #: an inexact step must at least halve the residual, or the rest of the
 #: increment factorises again (the tangent has changed too much for the old

@@ -265,6 +265,11 @@ class StaticProblem:
         last = self._factorized
         if last is None or K is None or not self.symmetric_tangent or K.shape[0] == 0:
             return None
+        # no more back-substitutions than a third of a new factorisation
+        # costs with this backend (PARDISO: one, so none are tried; SuperLU: ten)
+        maxiter = min(maxiter, int(last[3].solves_per_factorisation / 3.0))
+        if maxiter < 2:
+            return None
         found = linear.preconditioned_cg(K, r, last[3].precondition, rtol, maxiter)
         self.krylov_iterations += found.iterations
         return found.x if found.converged else None

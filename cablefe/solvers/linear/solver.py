@@ -259,6 +259,14 @@ class Factorization:
             self._inertia = found
         return self._inertia
 
+    @property
+    def solves_per_factorisation(self) -> float:
+        """What a factorisation by this backend costs, in back-substitutions
+        with its factors (a measured constant of the backend; inf for an
+        empty system): the budget of iterative solves preconditioned with
+        these factors (see :mod:`.krylov`)."""
+        return float(getattr(self._factor, "solves_per_factorisation", 1.0)) if self.n else float("inf")
+
     def precondition(self, v: np.ndarray) -> np.ndarray:
         """``K^-1 v`` with these factors and no residual check or refinement.
 
