@@ -10,11 +10,13 @@ Every result (combination, or load case when there are none) of every
 ``cases/*.toml`` is solved twice in this process: "before" with
 ``NewtonSettings.whole_load_first = False`` (increments from
 ``1/[analysis] increments``, growing by half after an easy one), no
-modified Newton steps (``modified_ratio = 0``) and the stability counted by
+modified or inexact Newton steps (``modified_ratio = krylov_ratio = 0``) and the stability counted by
 one more factorisation at every converged state (``PIVOT_REUSE_RATIO``
 off): the driver as it was; "after" with the defaults (the whole load
-tried first in one increment, modified Newton near the solution, the
-count read from the last iteration where it may).  Factorisations are the
+tried first in one increment, inexact Newton steps by conjugate gradients
+preconditioned with the last factors near the solution, or modified
+Newton steps for beam models, the count read from the last iteration
+where it may).  Factorisations are the
 calls of ``LinearSolver.factorize`` (Newton steps and stability counts).  Generated cases: the benchmark saddle nets of ``cases.py`` in
 the ordinary ``[[members]]`` form with the default ``[analysis]``.  Prints a
 Markdown table: iterations and converged increments before -> after, and
@@ -54,7 +56,8 @@ def _run(path: Path, now: bool):
 
     def patched(problem, settings=newton.NewtonSettings(), progress=None):
         if not now:
-            settings = dataclasses.replace(settings, whole_load_first=False, modified_ratio=0.0)
+            settings = dataclasses.replace(settings, whole_load_first=False, modified_ratio=0.0,
+                                           krylov_ratio=0.0)
         return original(problem, settings, progress)
 
     static.follow_load_path = patched
