@@ -514,41 +514,51 @@ def test_schur_product_declines_when_it_does_not_pay_or_fails_its_check(monkeypa
 
 
 @pytest.mark.parametrize("small_system", [5000, 0])
-def test_solve_blocks_match_dense_solve(monkeypatch, small_system, verify):
-    _solve_blocks_against_dense(monkeypatch, "superlu", small_system, verify)
+def test_solve_product_matches_dense_solve(monkeypatch, small_system, verify):
+    _solve_product_against_dense(monkeypatch, "superlu", small_system, verify)
 
 
 @pytest.mark.parametrize("backend", [b for b in BACKENDS if b != "superlu"])
-def test_solve_blocks_of_other_backends(monkeypatch, backend):
-    _solve_blocks_against_dense(monkeypatch, backend, 5000, None)
+def test_solve_product_of_other_backends(monkeypatch, backend):
+    _solve_product_against_dense(monkeypatch, backend, 5000, None)
 
 
-def _solve_blocks_against_dense(monkeypatch, backend, small_system, verify):
+def _solve_product_against_dense(monkeypatch, backend, small_system, verify):
     from cablefe.solvers.linear import solver as solver_module
     monkeypatch.setattr(solver_module, "SMALL_SYSTEM", small_system)
+    monkeypatch.setattr(solver_module, "SMALL_BLOCK", 16)       # 37 columns: blocks of 16, 16 and 5
     K = _grid_tangent(15, 6)
     n = K.shape[0]
-    B = np.random.default_rng(8).uniform(-1, 1, (n, 37))
-    fact = make_linear_solver(backend).factorize(K)
-    X = np.zeros_like(B)
-    firsts = []
-    for a, block in fact.solve_blocks(sp.csc_matrix(B)):
-        X[:, a:a + block.shape[1]] = block
-        firsts.append(a)
-    assert firsts == sorted(set(firsts)) and firsts[0] == 0
+    rng = np.random.default_rng(8)
+    B = rng.uniform(-1, 1, (n, 37))
+    B[:, 3] *= 1e6                  # columns of very different sizes
+    left = sp.random(11, n, density=0.05, random_state=9, format="csr")
+    solver = make_linear_solver(backend)
+    solver.factorize(K)
+    fact = solver.factorize(K)     # the second: SuperLU solves in its reused order
     # source: LAPACK's dense LU solve (numpy.linalg.solve)
-    expected = np.linalg.solve(K.toarray(), B)
-    if verify is None:
-        assert_allclose(X, expected, rtol=0, atol=1e-10 * np.abs(X).max())
-        return
-    verify.check(f"K X = B solved a block of columns at a time ({backend}, 37 columns)",
-                 "LAPACK dense LU solve (numpy.linalg.solve)", X, expected, atol=1e-10 * np.abs(X).max())
+    expected = left.toarray() @ np.linalg.solve(K.toarray(), B)
+    for rhs in (B, sp.csc_matrix(B)):
+        got = fact.solve_product(left, rhs)
+        assert got.shape == (11, 37)
+        if verify is None:
+            assert_allclose(got, expected, rtol=1e-10, atol=1e-12 * np.abs(expected).max())
+            continue
+        verify.check(f"left K^-1 B a block of columns at a time ({backend}, 37 columns)",
+                     "LAPACK dense LU solve (numpy.linalg.solve)", got / np.abs(expected).max(axis=0),
+                     expected / np.abs(expected).max(axis=0), atol=1e-10)
 
 
-def test_solve_blocks_resolve_a_block_that_fails_its_check(monkeypatch):
+def test_solve_product_checks_every_column(monkeypatch):
+    """One column solved badly among many fails the combined check, and every
+    column is solved again with its own check."""
     K = _grid_tangent(10, 9)
-    B = np.random.default_rng(10).uniform(-1, 1, (K.shape[0], 5))
-    fact = make_linear_solver("superlu").factorize(K)
+    n = K.shape[0]
+    B = np.random.default_rng(10).uniform(-1, 1, (n, 40))
+    B[:, 7] *= 1e-6                # the bad column is also the smallest one
+    solver = make_linear_solver("superlu")
+    solver.factorize(K)
+    fact = solver.factorize(K)
     calls = []
     original = type(fact).solve
 
@@ -556,9 +566,21 @@ def test_solve_blocks_resolve_a_block_that_fails_its_check(monkeypatch):
         calls.append(1)
         return original(self, b)
     monkeypatch.setattr(type(fact), "solve", counted)
-    # a raw solve that is off by 1e-6: the random-combination check must see it
-    raw = fact._raw_solve
-    monkeypatch.setattr(fact, "_raw_solve", lambda R: raw(R) * (1.0 + 1e-6))
-    (a, X), = list(fact.solve_blocks(B))
-    assert len(calls) == 5      # each column again, with the full check and refinement
+    factor = fact._factor
+    raw = factor.solve_ordered
+
+    def spoiled(R):
+        X = raw(R)
+        hit = np.flatnonzero(np.all(np.isclose(R, B[factor.order][:, [7]]), axis=0))
+        X[:, hit] *= 1.0 + 1e-6     # off by 1e-6 in one column only
+        return X
+    monkeypatch.setattr(factor, "solve_ordered", spoiled)
+    left = sp.identity(n, format="csr")
+    X = fact.solve_product(left, B)
+    assert len(calls) == 40      # each column again, with the full check and refinement
     assert_allclose(X, np.linalg.solve(K.toarray(), B), rtol=1e-9)
+    # without the spoiled column the blocks pass their check and nothing is solved again
+    monkeypatch.setattr(factor, "solve_ordered", raw)
+    calls.clear()
+    fact.solve_product(left, B)
+    assert calls == []

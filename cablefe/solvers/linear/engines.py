@@ -33,12 +33,21 @@ class _SuperLUFactor:
         self._q = q   # K[q][:, q] was factorized (ordering reuse)
         self.stats = {"nnz_factor": int(lu.nnz)}
 
+    @property
+    def order(self) -> np.ndarray | None:
+        """Rows as :meth:`solve_ordered` takes them (``K[q][:, q]`` was
+        factorised), or None for the matrix's own order."""
+        return self._q
+
     def solve(self, B: np.ndarray) -> np.ndarray:
         if self._q is None:
-            return np.asarray(self._lu.solve(B)).reshape(B.shape)
+            return self.solve_ordered(B)
         X = np.empty_like(B)
-        X[self._q] = np.asarray(self._lu.solve(B[self._q])).reshape(B.shape)
+        X[self._q] = self.solve_ordered(B[self._q])
         return X
+
+    def solve_ordered(self, B: np.ndarray) -> np.ndarray:
+        return np.asarray(self._lu.solve(B)).reshape(B.shape)
 
     def inertia(self, system: _System) -> tuple[int, int, int] | None:
         # with a symmetric permutation (perm_r == perm_c) and symmetric K,
@@ -77,8 +86,13 @@ class _PardisoFactor:
         else:
             self._inertia = None
 
+    #: its solve takes the matrix's own order
+    order = None
+
     def solve(self, B: np.ndarray) -> np.ndarray:
         return np.ascontiguousarray(self._handle.solve(self._a, B, self._generation))
+
+    solve_ordered = solve
 
     def inertia(self, system: _System) -> tuple[int, int, int] | None:
         return self._inertia

@@ -27,13 +27,25 @@ logger = logging.getLogger(__name__)
 #: Names accepted by :func:`make_linear_solver`.
 KNOWN_BACKENDS = ("auto", "pardiso", "superlu", "splu-default")
 
-#: :meth:`Factorization.solve_blocks`: columns per solve call (PARDISO; it
+#: :meth:`Factorization.solve_product`: columns per solve call (PARDISO; it
 #: also bounds the dense block in memory), and for SuperLU the columns per
 #: call on systems of up to SMALL_SYSTEM equations (one at a time above)
 BLOCK_COLUMNS = 256
 SMALL_SYSTEM = 5000
-SMALL_BLOCK = 16
+SMALL_BLOCK = 32
 _BLOCK_CHECK_SEED = 7321
+
+
+def _dense_columns(B, a: int, b: int) -> np.ndarray:
+    """Columns ``a:b`` of ``B`` (dense, or sparse CSC with no duplicates) as
+    a dense Fortran-ordered block (what SuperLU and PARDISO solve without a
+    copy), without building a sparse slice."""
+    if not sp.issparse(B):
+        return np.asfortranarray(B[:, a:b], dtype=np.float64)
+    lo, hi = B.indptr[a], B.indptr[b]
+    out = np.zeros((B.shape[0], b - a), order="F")
+    out[B.indices[lo:hi], np.repeat(np.arange(b - a), np.diff(B.indptr[a:b + 1]))] = B.data[lo:hi]
+    return out
 
 
 # --------------------------------------------------------------------------
@@ -154,43 +166,118 @@ class Factorization:
                                self.backend)
         return X.reshape(b.shape)
 
-    def solve_blocks(self, B):
-        """Solve ``K X = B`` for many columns: yields ``(first column, X block)``.
+    def solve_product(self, left, B) -> np.ndarray:
+        """``left K^-1 B`` for many columns ``B``, never holding all of ``K^-1 B``.
 
-        Blocks as the backend solves fastest: SuperLU ``SMALL_BLOCK``
-        columns per call on systems of up to ``SMALL_SYSTEM`` equations and
-        one at a time above (its multi-column solve was measured 3-4 times
-        slower there: 28 812 DOFs, 64 columns, 2.6 s against 0.75 s; at
-        1 816 DOFs 16 columns per call took 9 ms against 20 ms one by one
-        for 102 columns), other backends ``CHUNK``.  Each block is checked
-        on one random combination ``w`` of its columns: the scaled backward
-        error of ``K (X w) = B w`` (one product with ``K`` instead of one per
-        column; a column solved badly shows in it unless ``w`` happens to
-        cancel it, which has probability zero).  A block that fails is
-        solved again column by column by :meth:`solve`, with its full check.
+        ``B`` is solved a block of columns at a time, as the backend solves
+        fastest: SuperLU ``SMALL_BLOCK`` columns per call on systems of up
+        to ``SMALL_SYSTEM`` equations and one at a time above (its
+        multi-column solve was measured 3-4 times slower there: 28 812
+        DOFs, 64 columns, 2.6 s against 0.75 s; at 1 816 DOFs 32 columns
+        per call took 4.8 ms against 11 ms one by one for 102 columns),
+        other backends ``BLOCK_COLUMNS``; each block is multiplied by
+        ``left`` at once.  With SuperLU the blocks are solved in the
+        factors' own row order, and ``left``'s columns are put in that
+        order once, instead of permuting every block there and back.
+
+        All columns are checked together, with one product with ``K``: the
+        residual of ``X w`` for random weights ``w_j = u_j / d_j``, ``d_j``
+        the denominator of column ``j``'s scaled backward error (see
+        :meth:`_System.backward_error`) and ``|u_j|`` in [1/2, 1] with a
+        random sign, must be below the solver's ``residual_tol``: each
+        column then counts as its own backward error, so one column above
+        twice the tolerance shows unless the others cancel it exactly,
+        which has probability zero.  When the check fails, every column is
+        solved again by :meth:`solve`, with its full check, refinement and
+        fallbacks.
 
         Parameters
         ----------
-        B : (n, m) array or sparse matrix (columns are densified a block at a time)
+        left : (m, n) sparse or dense matrix
+        B : (n, p) array or sparse matrix (densified a block at a time)
+
+        Returns
+        -------
+        numpy.ndarray, shape (m, p)
         """
-        m = B.shape[1]
+        left = sp.csr_matrix(left)
+        m, p = left.shape[0], B.shape[1]
+        if left.shape[1] != self.n or B.shape[0] != self.n:
+            raise ValueError(f"left must have {self.n} columns and B {self.n} rows, "
+                             f"got {left.shape} and {B.shape}")
+        out = np.zeros((m, p))
+        if self.n == 0 or m == 0 or p == 0:
+            return out
+        factor, backend = self._factor, self.backend
+        q = factor.order
+        # B's rows and left's columns in the factors' order: for sparse
+        # matrices a relabelling of their indices
+        if q is None:
+            Bq, Lq = B, left
+        else:
+            where = np.empty_like(q)
+            where[q] = np.arange(q.size)
+            Lq = sp.csr_matrix((left.data, where[left.indices], left.indptr), shape=left.shape)
+            if sp.issparse(B):
+                B = sp.csc_matrix(B, dtype=np.float64)
+                Bq = sp.csc_matrix((B.data, where[B.indices], B.indptr), shape=B.shape)
+            else:
+                Bq = np.asarray(B)[q]
+        if sp.issparse(Bq):
+            Bq = sp.csc_matrix(Bq, dtype=np.float64)
+            Bq.sum_duplicates()
         step = BLOCK_COLUMNS
-        if self.backend.startswith(("superlu", "splu")):
+        if backend.startswith(("superlu", "splu")):
             step = SMALL_BLOCK if self.n <= SMALL_SYSTEM else 1
-        rng = np.random.default_rng(_BLOCK_CHECK_SEED)
-        for a in range(0, m, step):
-            block = B[:, a:a + step]
-            block = np.asarray(block.toarray() if hasattr(block, "toarray") else block, dtype=np.float64)
-            if self.n == 0:
-                yield a, np.zeros_like(block)
-                continue
-            X = self._raw_solve(np.asfortranarray(block))
+        if self._check:
+            system = self._system
+            s, sinv = (system.s, system.sinv) if q is None else (system.s[q], system.sinv[q])
+            rng = np.random.default_rng(_BLOCK_CHECK_SEED)
+            u = rng.uniform(0.5, 1.0, p) * rng.choice([-1.0, 1.0], p)
+            w = np.zeros(p)
+            xw = np.zeros(self.n)
+            if sp.issparse(Bq):        # |S b_j|_inf of every column at once
+                scaled_b = np.abs(Bq.data * s[Bq.indices])
+                b_norm = np.zeros(p)
+                filled = np.flatnonzero(np.diff(Bq.indptr))
+                b_norm[filled] = np.maximum.reduceat(scaled_b, Bq.indptr[filled])
+            else:
+                b_norm = np.max(np.abs(Bq * s[:, None]), axis=0)
+            scaled = np.empty((self.n, min(step, p)), order="F")
+        for a in range(0, p, step):
+            b = min(a + step, p)
+            block = _dense_columns(Bq, a, b)
+            try:
+                X = factor.solve_ordered(block)
+            except _FactorFailed as exc:
+                self._fall_back(str(exc))
+                return self._solve_product_by_columns(left, B)
+            out[:, a:b] = Lq @ X
             if self._check:
-                w = rng.uniform(-1.0, 1.0, block.shape[1])
-                eta, _ = self._system.backward_error((block @ w)[:, None], (X @ w)[:, None])
-                if not eta[0] <= self._tol:
-                    X = np.column_stack([self.solve(block[:, j]) for j in range(block.shape[1])])
-            yield a, X
+                # w_j = u_j / (|S K S|_inf |S^-1 x_j|_inf + |S b_j|_inf)
+                part = np.multiply(X, sinv[:, None], out=scaled[:, :b - a])
+                den = system.norm_hat * np.max(np.abs(part, out=part), axis=0) + b_norm[a:b]
+                np.divide(u[a:b], den, out=w[a:b], where=den > 0.0)
+                xw += X @ w[a:b]
+        if self._check:
+            bw = Bq @ w
+            x, b = (xw, bw) if q is None else (np.empty_like(xw), np.empty_like(bw))
+            if q is not None:
+                x[q], b[q] = xw, bw
+            r = np.max(np.abs(system.s * (b - system.K @ x)))
+            if not r <= self._tol:
+                logger.debug("linear solve: block solves failed their combined check "
+                             "(%.1e > %.0e); solving column by column", r, self._tol)
+                return self._solve_product_by_columns(left, B)
+        return out
+
+    def _solve_product_by_columns(self, left, B) -> np.ndarray:
+        out = np.zeros((left.shape[0], B.shape[1]))
+        for j in range(B.shape[1]):
+            b = B[:, j]
+            b = b.toarray().ravel() if sp.issparse(b) else np.asarray(b).ravel()
+            out[:, j] = left @ self.solve(b)
+        return out
 
     def schur_product(self, C, F) -> np.ndarray | None:
         """``C K^-1 F`` through the Schur complement on the unknowns ``C``
