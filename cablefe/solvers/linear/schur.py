@@ -80,18 +80,25 @@ def schur_product(K: sp.csr_matrix, order: np.ndarray | None, C, F, factor_nnz: 
     if order is None or factor_nnz is None or n == 0 or m == 0 or p == 0:
         return None
     C = sp.csr_matrix(C)
-    f_rows = (np.unique(sp.csc_matrix(F).indices) if sp.issparse(F)
-              else np.flatnonzero(np.any(np.asarray(F) != 0.0, axis=1)))
-    touched = np.union1d(np.unique(C.indices), f_rows)
-    r = touched.size
+    # the touched unknowns, by a mask (the route is declined here for most
+    # calls that do not pay, before any matrix is formed)
+    mask = np.zeros(n, dtype=bool)
+    mask[C.indices] = True
+    if sp.issparse(F):
+        F = sp.csc_matrix(F)
+        mask[F.indices] = True
+    else:
+        mask |= np.any(np.asarray(F) != 0.0, axis=1)
+    r = int(np.count_nonzero(mask))
     if r == 0:
         return np.zeros((m, p))
     solve = 2.0 * (2.0 * factor_nnz + K.nnz)           # flops of one solve and its residual
     dense = r ** 3 / 3.0 + 2.0 * r * r * p + 2.0 * m * r * p
     if r > MAX_TOUCHED or r >= n or FACTORISATION_IN_SOLVES * solve + dense > WORTH * min(m, p) * solve:
         return None
+    touched = np.flatnonzero(mask)
     F = sp.csc_matrix(F)
-    rest = order[~np.isin(order, touched)]
+    rest = order[~mask[order]]
     perm = np.concatenate([rest, touched])              # new index -> old index
     Kp = sp.csc_matrix(K)[perm][:, perm].tocsc()
     try:
