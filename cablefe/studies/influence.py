@@ -68,6 +68,7 @@ def _tension_rows(model, assembler, state, loads, members, blocks):
     ``blocks`` are the element responses (with tangents) at ``state``.  Batched
     per family: the governing end is the first largest end tension of the
     member's elements, in element then end order (as ``numpy.argmax``).
+    Returns the rows as triplets ``(row, column, value)`` and the base tensions.
     """
     per = element_end_tensions(model, blocks)
     members = np.asarray(members, dtype=int)
@@ -115,13 +116,13 @@ def _tension_rows(model, assembler, state, loads, members, blocks):
         rows.append(np.broadcast_to(r_idx[:, None], eq.shape)[keep])
         cols.append(eq[keep])
         vals.append(g[keep])
-    return (sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
-                          shape=(len(members), assembler.nfree)), base)
+    return (np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)), base
 
 
 def _reaction_rows(model, assembler, blocks, dofs):
     """Rows ``dofs`` (global DOFs) of the tangent over all DOFs, restricted to the
-    free columns, from the element blocks (the assembly of those rows only)."""
+    free columns, from the element blocks (the assembly of those rows only), as
+    triplets ``(row, column, value)`` (repeated entries add up)."""
     index = np.full(model.ndof, -1)
     index[dofs] = np.arange(len(dofs))
     rows, cols, vals = [np.zeros(0, int)], [np.zeros(0, int)], [np.zeros(0)]
@@ -137,8 +138,7 @@ def _reaction_rows(model, assembler, blocks, dofs):
         rows.append(np.broadcast_to(row[:, :, None], K.shape)[keep])
         cols.append(np.broadcast_to(col[:, None, :], K.shape)[keep])
         vals.append(K[keep])
-    return sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
-                         shape=(len(dofs), assembler.nfree))
+    return np.concatenate(rows), np.concatenate(cols), np.concatenate(vals)
 
 
 def influence_lines(session, lane, direction, node_ids=None, member_ids=None) -> InfluenceLines:
@@ -175,12 +175,15 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
     owner += [i for i in ids for _ in range(3)]
     dirs += [0, 1, 2] * len(ids)
     base += disp0[nodes, :3].ravel().tolist()
-    C_disp = sp.csr_matrix((np.ones(len(r_rows)), (r_rows, r_cols)), shape=(len(names), nfree))
+    # the response rows C = dR/du over the free DOFs, gathered as triplets
+    triplets = [(r_rows, r_cols, np.ones(len(r_rows)))]
 
     blocks = session.base_evaluation.responses
-    C_ten, T0 = _tension_rows(model, asm, state, loads, members, blocks) if len(members) else \
-        (sp.csr_matrix((0, nfree)), np.zeros(0))
-    for k, t in zip(members, T0):
+    T0 = np.zeros(0)
+    if len(members):
+        (rows, cols, vals), T0 = _tension_rows(model, asm, state, loads, members, blocks)
+        triplets.append((rows + len(names), cols, vals))
+    for k in members:
         names.append(f"{model.members[k].id} tension")
         kind.append("tension")
         owner.append(model.members[k].id)
@@ -190,10 +193,10 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
     # reactions of watched supported nodes, in their restrained directions
     reac = [(n, a, int(model.dof[n, a])) for n in nodes if model.node_ids[n] in model.spec.supports
             for a in range(3) if model.dof[n, a] >= 0 and model.supported[model.dof[n, a]]]
-    C_reac = sp.csr_matrix((len(reac), nfree))
     if reac:
         g = np.array([r[2] for r in reac])
-        C_reac = _reaction_rows(model, asm, blocks, g)
+        rows, cols, vals = _reaction_rows(model, asm, blocks, g)
+        triplets.append((rows + len(names), cols, vals))
         R0 = session.base_evaluation.internal[g] - loads.nodal[g]
         for (n, a, _), r0 in zip(reac, R0):
             names.append(f"{model.node_ids[n]} R{'xyz'[a]}")
@@ -201,18 +204,26 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
             owner.append(model.node_ids[n])
             dirs.append(a)
             base.append(float(r0))
-    C = sp.vstack([C_disp, C_ten, C_reac]).tocsr()
+    rows, cols, vals = (np.concatenate(x) for x in zip(*triplets))
+    C = sp.csr_matrix((vals, (rows, cols)), shape=(len(names), nfree))
 
-    # unit forces at the lane points: all DOFs (reactions take a force that
-    # stands on their support directly) and the free part
+    # unit forces at the lane points, on the free equations (sparse: one
+    # to three entries per column); a reaction takes the force that stands
+    # on its own support directly
     P = len(lane.nodes)
-    F = np.zeros((ndof, P))
-    g = model.dof[lane.nodes, :3]                     # (P, 3)
-    F[g, np.arange(P)[:, None]] = d[None, :]
-    F_free = F[asm.free]
+    g = model.dof[lane.nodes, :3]                     # (P, 3) global DOFs
+    point = np.broadcast_to(np.arange(P)[:, None], g.shape)
+    comp = np.broadcast_to(d[None, :], g.shape)
+    eq = np.where(g >= 0, asm.equation[np.maximum(g, 0)], -1)
+    on = (eq >= 0) & (comp != 0.0)
+    F_free = sp.csc_matrix((comp[on], (eq[on], point[on])), shape=(nfree, P))
     direct = np.zeros((len(names), P))
     if reac:
-        direct[len(names) - len(reac):] = -F[[r[2] for r in reac]]
+        where = np.full(ndof, -1)
+        where[g[g >= 0]] = np.flatnonzero((g >= 0).ravel())
+        hit = where[[r[2] for r in reac]]
+        rows = np.flatnonzero(hit >= 0)
+        direct[len(names) - len(reac) + rows, hit[rows] // 3] = -d[hit[rows] % 3]
 
     values = np.zeros((len(names), P))
     symmetric_tangent = not model.has_rotations
@@ -230,16 +241,14 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
             # then C X: the same numbers as the adjoint (C K^-1 F either
             # way; for a symmetric K this is Maxwell-Betti reciprocity), and
             # an unsymmetric K (beams) needs no factorization of K^T
-            for a, X in session.base_factor.solve_blocks(F_free):
-                values[:, a:a + X.shape[1]] = (C @ X)
+            values[:] = session.base_factor.solve_product(C, F_free)
         else:
             # the adjoint needs K^T; the tangent of bars and cables is
             # symmetric, so the session's factorization serves as it is
             fact = session.base_factor
             if not symmetric_tangent or fact is None:
                 fact = session.solver.factorize(session.base_tangent.T.tocsr())
-            for a, lam in fact.solve_blocks(C.T.tocsc()):
-                values[a:a + lam.shape[1]] = lam.T @ F_free
+            values[:] = fact.solve_product(F_free.T, C.T).T
     values += direct
     return InfluenceLines(names, kind, owner, np.asarray(dirs), values, lane.s.copy(), np.asarray(base))
 
