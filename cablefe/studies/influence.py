@@ -74,11 +74,13 @@ def _tension_rows(model, assembler, state, loads, members, blocks):
     members = np.asarray(members, dtype=int)
     base = np.zeros(len(members))
     rows, cols, vals = [np.zeros(0, int)], [np.zeros(0, int)], [np.zeros(0)]
-    family = np.array([model.members[k].family for k in members])
+    info = [model.members[k] for k in members.tolist()]
+    family = np.array([m.family for m in info])
+    first_all = np.array([m.first for m in info], dtype=np.int64)
+    count_all = np.array([m.count for m in info], dtype=np.int64)
     for f in dict.fromkeys(family.tolist()):
         r_idx = np.flatnonzero(family == f)
-        first = np.array([model.members[members[r]].first for r in r_idx])
-        count = np.array([model.members[members[r]].count for r in r_idx])
+        first, count = first_all[r_idx], count_all[r_idx]
         # the (member row, element) pairs of these members, then their ends
         owner = np.repeat(np.arange(len(r_idx)), count)
         elem = np.repeat(first, count) + np.arange(count.sum()) - np.repeat(np.cumsum(count) - count, count)
@@ -212,11 +214,12 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
     # on its own support directly
     P = len(lane.nodes)
     g = model.dof[lane.nodes, :3]                     # (P, 3) global DOFs
-    point = np.broadcast_to(np.arange(P)[:, None], g.shape)
     comp = np.broadcast_to(d[None, :], g.shape)
     eq = np.where(g >= 0, asm.equation[np.maximum(g, 0)], -1)
     on = (eq >= 0) & (comp != 0.0)
-    F_free = sp.csc_matrix((comp[on], (eq[on], point[on])), shape=(nfree, P))
+    # (built column by column: row-major over (point, axis) is column order)
+    indptr = np.concatenate([[0], np.cumsum(np.count_nonzero(on, axis=1))])
+    F_free = sp.csc_matrix((comp[on], eq[on], indptr), shape=(nfree, P))
     direct = np.zeros((len(names), P))
     if reac:
         where = np.full(ndof, -1)

@@ -6,6 +6,7 @@ a backend (and its fallback chain), factorizes, checks and diagnoses;
 
 from __future__ import annotations
 
+import functools
 import logging
 import time
 from dataclasses import dataclass, field
@@ -46,6 +47,17 @@ def _dense_columns(B, a: int, b: int) -> np.ndarray:
     out = np.zeros((B.shape[0], b - a), order="F")
     out[B.indices[lo:hi], np.repeat(np.arange(b - a), np.diff(B.indptr[a:b + 1]))] = B.data[lo:hi]
     return out
+
+
+@functools.lru_cache(maxsize=8)
+def _check_weights(p: int) -> np.ndarray:
+    """The fixed random weights ``u`` of :meth:`Factorization.solve_product`'s
+    combined check for ``p`` columns: ``|u_j|`` in [1/2, 1], random sign
+    (read-only; the same for every call, so results are reproducible)."""
+    rng = np.random.default_rng(_BLOCK_CHECK_SEED)
+    u = rng.uniform(0.5, 1.0, p) * rng.choice([-1.0, 1.0], p)
+    u.flags.writeable = False
+    return u
 
 
 # --------------------------------------------------------------------------
@@ -232,8 +244,7 @@ class Factorization:
         if self._check:
             system = self._system
             s, sinv = (system.s, system.sinv) if q is None else (system.s[q], system.sinv[q])
-            rng = np.random.default_rng(_BLOCK_CHECK_SEED)
-            u = rng.uniform(0.5, 1.0, p) * rng.choice([-1.0, 1.0], p)
+            u = _check_weights(p)
             w = np.zeros(p)
             xw = np.zeros(self.n)
             if sp.issparse(Bq):        # |S b_j|_inf of every column at once
