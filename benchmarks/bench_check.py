@@ -23,7 +23,6 @@ import argparse
 import json
 import os
 import re
-import resource
 import subprocess
 import sys
 import tempfile

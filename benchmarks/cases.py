@@ -214,7 +214,6 @@ def suspension_bridge(panels: int = 400, *, panel: float = 2.5, sag_ratio: float
     deck_z = 0.0
     tower = sag + 4.0
     cable_z = tower - 4.0 * sag * x / span * (1.0 - x / span)
-    nodes: dict[str, tuple[float, float, float]] = {}
     ids, xs, ys, zs = [], [], [], []
 
     def node(name, p):

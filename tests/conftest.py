@@ -1,8 +1,7 @@
 import numpy as np
 import pytest
 
-from cablefe.spec import (AnalysisSettings, CaseSpec, Combination, Material, Member, NodalLoad,
-                          Section, SelfWeight, UnitSystem)
+from cablefe.spec import AnalysisSettings, CaseSpec, Material, Section, UnitSystem
 
 
 def make_spec(nodes, members, supports, loads=(), combinations=(), sections=None, materials=None,

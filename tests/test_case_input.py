@@ -112,7 +112,7 @@ def test_base_case_reads(tmp_path):
 def test_toml_syntax_error_gives_line_and_column(tmp_path):
     text = BASE + "\n[analysis]\nincrements = = 3\n"
     line = text.splitlines().index("increments = = 3") + 1
-    error = expect_error(tmp_path, text, "", f"TOML syntax error at line {line}, column")
+    expect_error(tmp_path, text, "", f"TOML syntax error at line {line}, column")
 
 
 # The compiled parser reads the file when it is installed; tomli is the

@@ -82,7 +82,6 @@ def spring_chain(k, *, supported=True):
     removes a spring.
     """
     k = np.asarray(k, dtype=float)
-    n = k.size
     main = k.copy()
     main[:-1] += k[1:]
     if not supported:

@@ -5,7 +5,6 @@ import signal
 import stat
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import meshio

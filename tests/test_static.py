@@ -1,13 +1,12 @@
 """Whole-model nonlinear statics against closed-form and published results."""
 import numpy as np
-import pytest
 from hypothesis import given, settings, strategies as st
 from numpy.testing import assert_allclose
 from scipy.optimize import brentq
 
 import cablefe
-from cablefe.spec import (Combination, Material, Member, MemberLoad, NodalLoad, PrescribedDisplacement,
-                          Section, SelfWeight, TemperatureLoad)
+from cablefe.spec import (Material, Member, NodalLoad, PrescribedDisplacement, Section, SelfWeight,
+                          TemperatureLoad)
 from conftest import make_spec
 
 EA = 2.0e11 * 1.0e-3

@@ -5,7 +5,6 @@ import dataclasses
 import json
 from pathlib import Path
 
-import meshio
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose

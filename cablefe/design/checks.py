@@ -251,7 +251,6 @@ def check_design(design: DesignSpec, model: Model, data: list[ResultData], perma
         Deck nodes (``[report] deck``); an envelope with a lane uses its lane
         when this is None.
     """
-    spec = model.spec
     ids = [m.id for m in model.members]
     checked = match_indices(design.members, ids)
     props = _member_props(model)

@@ -246,7 +246,7 @@ def _unit_info(text: str) -> tuple[float, tuple]:
             f'"{text}" combines a temperature with an offset (degC, degF); '
             "use delta_degC, delta_degF or K"
         ) from None
-    except Exception as exc:  # pint's tokenizer raises several plain exception types
+    except Exception:  # pint's tokenizer raises several plain exception types
         raise _UnitTextError(f'cannot read the unit "{text}"') from None
     if not isinstance(quantity, ureg.Quantity):
         raise _UnitTextError(f'"{text}" is not a unit')

@@ -166,7 +166,7 @@ def _cutting(out: Path, units) -> str:
 
 def _result_section(results, name, entry, units, figure) -> str:
     m = results.model
-    L, F = units.length_scale, units.force_scale
+    L = units.length_scale
     parts = [f'<h3 id="result-{_e(safe_name(name))}">{_e(name)}</h3>']
     conv = entry.get("converged", False)
     parts.append(f"<p>{'<span class=ok>converged</span>' if conv else '<span class=fail>NOT CONVERGED</span>'}"

@@ -76,7 +76,7 @@ def summary_lines(results, design=None) -> list[str]:
         scale = max((float(np.abs(r).max()) for r in reac.values()), default=0.0)
         up = [n for n in bearings if reac[n][2] < -UPLIFT_NOISE * scale]
         if up:
-            lines.append(f"    UPLIFT at bearing(s): " + ", ".join(f"{n} (Rz = {_f(reac[n][2] / F, u.force)})"
+            lines.append("    UPLIFT at bearing(s): " + ", ".join(f"{n} (Rz = {_f(reac[n][2] / F, u.force)})"
                                                                for n in up))
         if design is not None:
             mine = [c for c in design.outcome.checks if c.result == res.name and not c.check.startswith("deflection")]

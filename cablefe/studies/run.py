@@ -121,7 +121,6 @@ def run_study(results: Results, study, runner: Runner | None = None, solver: str
     influence = None
     labels: list = []
     tasks: list = []
-    extra_nodes, extra_members = {}, {}
     if kind in ("influence", "patch"):
         influence = influence_lines(session, session.lane, study.load)
     if kind == "patch":
