@@ -538,8 +538,16 @@ def _solve_product_against_dense(monkeypatch, backend, small_system, verify):
     # source: LAPACK's dense LU solve (numpy.linalg.solve)
     expected = left.toarray() @ np.linalg.solve(K.toarray(), B)
     for rhs in (B, sp.csc_matrix(B)):
+        kept = (rhs.copy(), left.copy())
         got = fact.solve_product(left, rhs)
         assert got.shape == (11, 37)
+        # the inputs are left as they were (no in-place sorting of shared arrays)
+        for before, after in zip(kept, (rhs, left)):
+            if sp.issparse(after):
+                assert (np.array_equal(before.data, after.data) and np.array_equal(before.indices, after.indices)
+                        and np.array_equal(before.indptr, after.indptr))
+            else:
+                assert np.array_equal(before, after)
         if verify is None:
             assert_allclose(got, expected, rtol=1e-10, atol=1e-12 * np.abs(expected).max())
             continue

@@ -161,7 +161,7 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
     members = w.members if member_ids is None else np.asarray(member_ids)
     d = np.asarray(direction, dtype=float)
     d = d / np.linalg.norm(d)
-    nfree, ndof = asm.nfree, model.ndof
+    nfree = asm.nfree
     names, kind, owner, dirs, base = [], [], [], [], []
     disp0 = state.positions - model.coordinates
 
@@ -222,11 +222,9 @@ def influence_lines(session, lane, direction, node_ids=None, member_ids=None) ->
     F_free = sp.csc_matrix((comp[on], eq[on], indptr), shape=(nfree, P))
     direct = np.zeros((len(names), P))
     if reac:
-        where = np.full(ndof, -1)
-        where[g[g >= 0]] = np.flatnonzero((g >= 0).ravel())
-        hit = where[[r[2] for r in reac]]
-        rows = np.flatnonzero(hit >= 0)
-        direct[len(names) - len(reac) + rows, hit[rows] // 3] = -d[hit[rows] % 3]
+        # (reaction, lane point, axis) where the unit force stands on the support
+        i, point, axis = np.nonzero(np.array([r[2] for r in reac])[:, None, None] == g[None])
+        direct[len(names) - len(reac) + i, point] = -d[axis]
 
     values = np.zeros((len(names), P))
     symmetric_tangent = not model.has_rotations

@@ -223,21 +223,21 @@ class Factorization:
         factor, backend = self._factor, self.backend
         q = factor.order
         # B's rows and left's columns in the factors' order: for sparse
-        # matrices a relabelling of their indices
-        if q is None:
-            Bq, Lq = B, left
-        else:
+        # matrices a relabelling of their indices (into new arrays: the
+        # caller's matrices are never sorted or summed in place)
+        where = None
+        if q is not None:
             where = np.empty_like(q)
             where[q] = np.arange(q.size)
-            Lq = sp.csr_matrix((left.data, where[left.indices], left.indptr), shape=left.shape)
-            if sp.issparse(B):
-                B = sp.csc_matrix(B, dtype=np.float64)
-                Bq = sp.csc_matrix((B.data, where[B.indices], B.indptr), shape=B.shape)
-            else:
-                Bq = np.asarray(B)[q]
-        if sp.issparse(Bq):
-            Bq = sp.csc_matrix(Bq, dtype=np.float64)
+        Lq = left if q is None else sp.csr_matrix((left.data, where[left.indices], left.indptr),
+                                                  shape=left.shape)
+        if sp.issparse(B):
+            B = sp.csc_matrix(B, dtype=np.float64)
+            rows = B.indices.copy() if q is None else where[B.indices]
+            Bq = sp.csc_matrix((B.data.copy(), rows, B.indptr.copy()), shape=B.shape)
             Bq.sum_duplicates()
+        else:
+            Bq = np.asarray(B) if q is None else np.asarray(B)[q]
         step = BLOCK_COLUMNS
         if backend.startswith(("superlu", "splu")):
             step = SMALL_BLOCK if self.n <= SMALL_SYSTEM else 1
@@ -272,10 +272,9 @@ class Factorization:
                 xw += X @ w[a:b]
         if self._check:
             bw = Bq @ w
-            x, b = (xw, bw) if q is None else (np.empty_like(xw), np.empty_like(bw))
-            if q is not None:
-                x[q], b[q] = xw, bw
-            r = np.max(np.abs(system.s * (b - system.K @ x)))
+            if q is not None:          # back to the matrix's own order
+                xw[q], bw[q] = xw.copy(), bw.copy()
+            r = np.max(np.abs(system.s * (bw - system.K @ xw)))
             if not r <= self._tol:
                 logger.debug("linear solve: block solves failed their combined check "
                              "(%.1e > %.0e); solving column by column", r, self._tol)
